@@ -1,0 +1,128 @@
+"""Writes the invented demo site's input files (run once; the outputs are committed beside it).
+
+Ostrey, an invented riverside town. A 2.0 m OD water-main tunnel is pipejacked 480 m from the Kiln Yard shaft,
+curving left under Tanner's Walk, dipping under the Wenlow Brook, to the Osier Meadow shaft. A 1.5 m OD cable
+tunnel is being driven north from Osier Meadow toward the Rope Street shaft (face at chainage 95 m).
+Every name, place and number here is made up for the demo.
+"""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).parent
+X0, Y0 = 512300.0, 5703400.0  # Kiln Yard shaft, ETRS89 / UTM 32N (EPSG:25832)
+BROOK_X = 270.0  # local x of the brook's centre line where it meets the route, m
+
+
+def ground_level(x, y):
+    """Invented ground: falls gently east, with the brook channel (bed 3.1 m below the banks)."""
+    general = 31.2 - 0.0025 * x + 0.001 * y
+    d = x - (BROOK_X + 0.08 * y)  # the brook runs a little east of north
+    channel = 3.1 * np.exp(-((d / 6.5) ** 4))
+    return general - channel
+
+
+def drive_one():
+    """Plan: straight 120 m, then a 360 m long left-hand curve of radius 420 m. Section: invert levels."""
+    s = np.arange(0.0, 480.01, 5.0)
+    heading0 = np.radians(12.0)
+    radius = 420.0
+    x = np.empty_like(s)
+    y = np.empty_like(s)
+    straight = s <= 120.0
+    x[straight] = s[straight] * np.cos(heading0)
+    y[straight] = s[straight] * np.sin(heading0)
+    xs, ys = 120.0 * np.cos(heading0), 120.0 * np.sin(heading0)
+    a = (s[~straight] - 120.0) / radius
+    cx, cy = xs - radius * np.sin(heading0), ys + radius * np.cos(heading0)  # centre to the left
+    x[~straight] = cx + radius * np.sin(heading0 + a)
+    y[~straight] = cy - radius * np.cos(heading0 + a)
+    # Axis: 5.7 m deep at Kiln Yard, a sag under the brook, 5.2 m deep at Osier Meadow.
+    axis = np.interp(s, [0.0, 180.0, 250.0, 330.0, 400.0, 480.0], [25.5, 24.7, 24.2, 24.2, 24.6, 25.0])
+    invert = axis - 1.6 / 2.0  # inner diameter 1.6 m
+    return x, y, invert
+
+
+def main():
+    # Ground surface survey: a 10 m grid with 2 m spacing across the brook channel.
+    gx = np.arange(-40.0, 540.0, 10.0)
+    gy = np.arange(-80.0, 460.0, 10.0)
+    xx, yy = np.meshgrid(gx, gy)
+    fine_x = np.arange(BROOK_X - 30, BROOK_X + 70, 2.0)
+    fx, fy = np.meshgrid(fine_x, np.arange(-80.0, 460.0, 5.0))
+    px = np.concatenate([xx.ravel(), fx.ravel()])
+    py = np.concatenate([yy.ravel(), fy.ravel()])
+    keep = np.unique(np.round(np.column_stack([px, py]), 3), axis=0, return_index=True)[1]
+    px, py = px[np.sort(keep)], py[np.sort(keep)]
+    with open(HERE / "ground_survey.csv", "w") as f:
+        f.write("x,y,z\n")
+        for a, b in zip(px, py):
+            f.write(f"{X0 + a:.2f},{Y0 + b:.2f},{ground_level(a, b):.3f}\n")
+
+    x, y, invert = drive_one()
+    with open(HERE / "water_main_alignment.csv", "w") as f:
+        f.write("x,y,invert_z\n")
+        for a, b, c in zip(x, y, invert):
+            f.write(f"{X0 + a:.3f},{Y0 + b:.3f},{c:.3f}\n")
+
+    # Cable tunnel: from Osier Meadow shaft heading north-north-west, depth of axis below ground as Z.
+    sx, sy = x[-1] + 6.0, y[-1] + 4.0
+    t = np.linspace(0.0, 150.0, 7)
+    heading = np.radians(100.0)
+    cx, cy = sx + t * np.cos(heading), sy + t * np.sin(heading)
+    depth = np.interp(t, [0.0, 150.0], [5.0, 4.4])
+    feature = {
+        "type": "Feature",
+        "properties": {"name": "Rope Street cable tunnel"},
+        "geometry": {
+            "type": "LineString",
+            "coordinates": [[round(X0 + a, 3), round(Y0 + b, 3), round(d, 3)] for a, b, d in zip(cx, cy, depth)],
+        },
+    }
+    collection = {
+        "type": "FeatureCollection",
+        "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::25832"}},
+        "features": [feature],
+    }
+    (HERE / "cable_tunnel.geojson").write_text(json.dumps(collection, indent=1) + "\n")
+
+    # Places to report, set out from the routes: (id, route vertices, chainage, offset to the left, depth).
+    main_xy = np.column_stack([x, y])
+    cable_xy = np.column_stack([cx, cy])
+    crossing = 290.0  # about where the water main passes under the brook
+    rows = [
+        ("TW-01", main_xy, 120.0, -8.0, 0.0),  # Tanner's Walk, house fronts and kerbs across the route
+        ("TW-02", main_xy, 120.0, -4.0, 0.0),
+        ("TW-03", main_xy, 120.0, 0.0, 0.0),
+        ("TW-04", main_xy, 120.0, 4.0, 0.0),
+        ("TW-05", main_xy, 120.0, 8.0, 0.0),
+        ("GAS-1", main_xy, 116.0, 0.0, 1.2),  # a gas main under the street, at its own depth
+        ("GAS-2", main_xy, 116.0, 5.0, 1.2),
+        ("FB-W", main_xy, crossing - 14.0, 6.0, 0.0),  # footbridge abutments beside the crossing
+        ("FB-E", main_xy, crossing + 14.0, 6.0, 0.0),
+        ("RS-01", cable_xy, 60.0, 0.0, 0.0),  # cable tunnel: behind the face, and above it
+        ("RS-02", cable_xy, 95.0, 0.0, 0.0),
+        ("RS-03", cable_xy, 120.0, 0.0, 0.0),  # ahead of the face
+    ]
+    with open(HERE / "report_points.csv", "w") as f:
+        f.write("id,x,y,depth_m\n")
+        for pid, route, ch, off, d in rows:
+            px, py = _set_out(route, ch, off)
+            f.write(f"{pid},{X0 + px:.2f},{Y0 + py:.2f},{d}\n")
+
+
+def _set_out(xy, chainage, offset):
+    """Plan position at a chainage along a polyline and an offset to its left (plan chainage)."""
+    seg = np.diff(xy, axis=0)
+    s = np.concatenate([[0.0], np.cumsum(np.hypot(seg[:, 0], seg[:, 1]))])
+    k = min(np.searchsorted(s, chainage, side="right") - 1, len(seg) - 1)
+    t = seg[k] / np.hypot(*seg[k])
+    p = xy[k] + t * (chainage - s[k])
+    return p[0] - t[1] * offset, p[1] + t[0] * offset
+
+
+if __name__ == "__main__":
+    main()

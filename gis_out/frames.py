@@ -1,0 +1,151 @@
+"""A run's results as GeoDataFrames, one per GIS layer, all in the project CRS.
+
+Layers and fields (the names are part of the output format; GIS projects refer to them):
+
+- `route`             LineString Z per drive: drive, start_chainage_m, end_chainage_m, length_m, outer_diameter_m,
+                      face_chainage_m (NULL when the drive is complete), excavated_to_m, min_cover_m,
+                      min_axis_depth_m, lost_volume_m3.
+- `grid`              Point per grid node kept by the run: settlement_mm, ux_mm, uy_mm, strain_max_ue, strain_min_ue,
+                      tilt, horizontal_mm, strain_max_azimuth_deg.
+- `points`            Point per reporting point: id, depth_m, then the fields of `grid`. Absent when the run had no
+                      reporting points.
+- `settlement_bands`  MultiPolygon per band: band, lower_mm, upper_mm (see `gis_out.contours.settlement_bands`).
+- `settlement_lines`  MultiLineString per level: level_mm.
+
+Values are float64 as computed; nothing is rounded. Each frame declares its layer geometry type in
+`frame.attrs["geometry_type"]`, which `write_geopackage` uses so that a layer with no rows keeps its type.
+"""
+from __future__ import annotations
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import shapely
+
+from settle.errors import where
+from settle.results import DriveResult, Movements, Result
+
+from .contours import settlement_bands, settlement_lines
+
+GEOMETRY_TYPES = {
+    "route": "LineString Z",
+    "grid": "Point",
+    "points": "Point",
+    "settlement_bands": "MultiPolygon",
+    "settlement_lines": "MultiLineString",
+}
+
+ROUTE_FIELDS = ("drive", "start_chainage_m", "end_chainage_m", "length_m", "outer_diameter_m", "face_chainage_m",
+                "excavated_to_m", "min_cover_m", "min_axis_depth_m", "lost_volume_m3")
+MOVEMENT_FIELDS = ("settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt", "horizontal_mm",
+                   "strain_max_azimuth_deg")
+POINT_FIELDS = ("id", "depth_m") + MOVEMENT_FIELDS
+BAND_FIELDS = ("band", "lower_mm", "upper_mm")
+LINE_FIELDS = ("level_mm",)
+
+
+def _frame(columns: dict, geometry, crs: str, layer: str) -> gpd.GeoDataFrame:
+    """GeoDataFrame with the columns in the order given and its layer geometry type declared."""
+    gdf = gpd.GeoDataFrame(pd.DataFrame(columns), geometry=gpd.GeoSeries(geometry, crs=crs), crs=crs)
+    gdf.attrs["geometry_type"] = GEOMETRY_TYPES[layer]
+    return gdf
+
+
+def route_frame(drives: list[DriveResult], crs: str) -> gpd.GeoDataFrame:
+    """One LineString Z per drive along its tunnel axis, launch shaft first.
+
+    Parameters
+    ----------
+    drives : list of DriveResult   The drives as computed.
+    crs : str                      Project CRS, e.g. "EPSG:27700".
+
+    Returns
+    -------
+    GeoDataFrame  Fields of ROUTE_FIELDS. Chainages, lengths, cover and depth in [m], lost volume in [m3].
+                  length_m is end minus start chainage (chainage runs along the 3-D axis); min_cover_m and
+                  min_axis_depth_m are the least values at the axis vertices over the whole drive;
+                  face_chainage_m is NaN (NULL in files) when the drive is complete.
+    """
+    geoms, cols = [], {k: [] for k in ROUTE_FIELDS}
+    for d in drives:
+        xyz = np.asarray(d.axis_xyz_m, dtype=float)
+        if xyz.ndim != 2 or xyz.shape[1] != 3 or len(xyz) < 2:
+            raise ValueError(f"drive {d.name!r}: axis_xyz_m must be an (n >= 2) x 3 array; got shape {xyz.shape}")
+        geoms.append(shapely.linestrings(xyz))
+        cols["drive"].append(d.name)
+        cols["start_chainage_m"].append(d.start_chainage_m)
+        cols["end_chainage_m"].append(d.end_chainage_m)
+        cols["length_m"].append(d.end_chainage_m - d.start_chainage_m)
+        cols["outer_diameter_m"].append(d.outer_diameter_m)
+        cols["face_chainage_m"].append(np.nan if d.face_chainage_m is None else d.face_chainage_m)
+        cols["excavated_to_m"].append(d.excavated_to_m)
+        cols["min_cover_m"].append(np.min(d.cover_m))
+        cols["min_axis_depth_m"].append(np.min(d.axis_depth_m))
+        cols["lost_volume_m3"].append(d.lost_volume_m3)
+    columns = {"drive": pd.Series(cols["drive"], dtype=str)}
+    columns.update({k: np.asarray(cols[k], dtype=np.float64) for k in ROUTE_FIELDS[1:]})
+    return _frame(columns, geoms, crs, "route")
+
+
+def movement_columns(m: Movements) -> dict[str, np.ndarray]:
+    """The movement fields of the grid and points layers, float64, in MOVEMENT_FIELDS order.
+
+    Returns
+    -------
+    dict  settlement_mm, ux_mm, uy_mm, horizontal_mm [mm]; strain_max_ue, strain_min_ue [microstrain, tensile
+          positive]; tilt [-]; strain_max_azimuth_deg [deg clockwise from grid north, 0 to 180].
+    """
+    return {k: np.asarray(getattr(m, k), dtype=np.float64) for k in MOVEMENT_FIELDS}
+
+
+def grid_frame(grid: Movements, crs: str) -> gpd.GeoDataFrame:
+    """One 2-D point per grid node of the run, with its movements (fields of MOVEMENT_FIELDS)."""
+    return _frame(movement_columns(grid), shapely.points(grid.x_m, grid.y_m), crs, "grid")
+
+
+def points_frame(points: Movements, ids, crs: str) -> gpd.GeoDataFrame:
+    """One 2-D point per reporting point: `id` (text), `depth_m` below the surface [m], then the movement fields."""
+    if len(ids) != len(points):
+        raise ValueError(f"result has {len(points)} reporting points but {len(ids)} point ids")
+    columns = {"id": pd.Series([str(i) for i in ids], dtype=str),
+               "depth_m": np.asarray(points.depth_m, dtype=np.float64)}
+    columns.update(movement_columns(points))
+    return _frame(columns, shapely.points(points.x_m, points.y_m), crs, "points")
+
+
+def bands_frame(rows: list[dict], crs: str) -> gpd.GeoDataFrame:
+    """Settlement bands (rows of `settlement_bands`) as a frame; empty rows give an empty layer with the schema."""
+    columns = {"band": np.array([r["band"] for r in rows], dtype=np.int64),
+               "lower_mm": np.array([r["lower_mm"] for r in rows], dtype=np.float64),
+               "upper_mm": np.array([r["upper_mm"] for r in rows], dtype=np.float64)}
+    return _frame(columns, [r["geometry"] for r in rows], crs, "settlement_bands")
+
+
+def lines_frame(rows: list[dict], crs: str) -> gpd.GeoDataFrame:
+    """Contour lines (rows of `settlement_lines`) as a frame; empty rows give an empty layer with the schema."""
+    columns = {"level_mm": np.array([r["level_mm"] for r in rows], dtype=np.float64)}
+    return _frame(columns, [r["geometry"] for r in rows], crs, "settlement_lines")
+
+
+def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
+    """All GIS layers of a run, keyed by layer name, in the project CRS.
+
+    Parameters
+    ----------
+    result : settle.results.Result   A finished run.
+
+    Returns
+    -------
+    dict  `route`, `grid`, `points` (only when the run has reporting points), `settlement_bands`,
+          `settlement_lines`; see the module docstring for the fields.
+    """
+    project = result.project
+    crs = project.crs
+    levels_where = where(project.path, "[output] contour_levels_mm")
+    layers = {"route": route_frame(result.drives, crs), "grid": grid_frame(result.grid, crs)}
+    if result.points is not None:
+        layers["points"] = points_frame(result.points, result.point_ids, crs)
+    levels = project.output.contour_levels_mm
+    layers["settlement_bands"] = bands_frame(settlement_bands(result.tiles, levels, levels_where), crs)
+    layers["settlement_lines"] = lines_frame(settlement_lines(result.tiles, levels, levels_where), crs)
+    return layers

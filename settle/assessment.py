@@ -1,0 +1,107 @@
+"""The orchestrator: the engineer's procedure, step by step.
+
+    result = Assessment(project).greenfield().result
+
+Each step can be run and tested alone; the numbers come from the model functions in `troughs`, superposed by
+`field`, on the geometry of `route`.
+"""
+from __future__ import annotations
+
+import time
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from .field import movements_at_points, settlement_grid
+from .ground import GroundModel
+from .model import Project
+from .results import Result
+from .route import Elements, build_drive, tunnel_elements
+
+
+class Assessment:
+    """Runs the assessment of one project. `progress(stage, fraction)` is told how far a long step has got."""
+
+    def __init__(self, project: Project, progress: Callable[[str, float], None] | None = None):
+        self.project = project
+        self.ground = GroundModel(project.ground)
+        self.progress = progress or (lambda stage, fraction: None)
+        self.warnings: list[str] = list(project.warnings)
+        self.timings: dict[str, float] = {}
+        self.drives = []
+        self.elements: Elements | None = None
+        self._result: Result | None = None
+
+    def _timed(self, name, started):
+        self.timings[name] = time.perf_counter() - started
+
+    def route(self) -> "Assessment":
+        """Axis, chainage, depth and cover of every drive, cut into tunnel elements over the excavated length."""
+        t = time.perf_counter()
+        where = self.project.path.name if self.project.path else "project"
+        parts = []
+        for index, drive in enumerate(self.project.drives):
+            geometry, warnings = build_drive(drive, self.ground, where)
+            parts.append(tunnel_elements(drive, geometry, self.ground, index))
+            self.drives.append(geometry)
+            self.warnings.extend(warnings)
+        self.elements = Elements.concatenate(parts)
+        self._timed("route", t)
+        return self
+
+    def greenfield(self) -> "Assessment":
+        """Greenfield movements on the grid and at the requested places, at the construction stage given."""
+        if self.elements is None:
+            self.route()
+        out = self.project.output
+        t = time.perf_counter()
+        grid, tiles, volume = settlement_grid(
+            self.elements,
+            out.grid_spacing_m,
+            out.precision_mm / 1e3,
+            out.grid_threshold_mm,
+            progress=lambda f: self.progress("grid", f),
+        )
+        self._timed("grid", t)
+        t = time.perf_counter()
+        points, ids = None, ()
+        if self.project.points is not None:
+            pts = self.project.points
+            points = movements_at_points(self.elements, self.ground, pts.x_m, pts.y_m, pts.depth_m)
+            ids = pts.ids
+            deep = [pid for pid, s in zip(ids, points.settlement_mm) if np.isnan(s)]
+            if deep:
+                shown = ", ".join(deep[:10]) + (" ..." if len(deep) > 10 else "")
+                self.warnings.append(
+                    f"{len(deep)} point(s) lie at or below the crown of a drive that reaches them, where the "
+                    f"subsurface trough is not defined; their movements are left empty: {shown}"
+                )
+        self._timed("points", t)
+        self._result = Result(
+            project=self.project,
+            drives=self.drives,
+            grid=grid,
+            tiles=tiles,
+            points=points,
+            point_ids=ids,
+            settlement_volume_m3=volume,
+            warnings=self.warnings,
+            timings_s=self.timings,
+        )
+        return self
+
+    @property
+    def result(self) -> Result:
+        if self._result is None:
+            self.greenfield()
+        return self._result
+
+
+def run(project: Project | str | Path, progress=None) -> Result:
+    """Load (if given a path) and assess a project; one call for scripts and notebooks."""
+    if not isinstance(project, Project):
+        from .project import load_project
+
+        project = load_project(project)
+    return Assessment(project, progress).greenfield().result

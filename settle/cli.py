@@ -1,0 +1,122 @@
+"""The command line: `settle run PROJECT.toml --out DIR`.
+
+Exit status: 0 done; 2 a mistake in the input (one message naming the file, key or row); 1 the run could not write
+its outputs (for example the GeoPackage is open for editing elsewhere).
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+from .summary import CAUTION
+
+DESCRIPTION = (
+    "settle: greenfield ground movements along pipejacked and microtunnelled drives, from one project file "
+    "to a GeoPackage.\n\n" + CAUTION
+)
+
+
+class _Progress:
+    """A one-line progress indicator on a terminal; silent when stderr is not one."""
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled
+        self.shown = False
+
+    def __call__(self, stage: str, fraction: float) -> None:
+        if self.enabled:
+            sys.stderr.write(f"\r{stage}: {100 * fraction:5.1f} %")
+            sys.stderr.flush()
+            self.shown = True
+
+    def done(self) -> None:
+        if self.shown:
+            sys.stderr.write("\r" + " " * 40 + "\r")
+            sys.stderr.flush()
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="settle", description=DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+    parser.add_argument("--version", action="version", version=f"settle {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+    run = commands.add_parser(
+        "run",
+        help="compute greenfield movements for a project and write the GeoPackage and summary",
+        description=(
+            "Compute greenfield ground movements along every drive of PROJECT (a TOML project file) and write "
+            "DIR/<project file stem>.gpkg (layers route, grid, settlement_bands, settlement_lines, points) and "
+            "DIR/summary.json. Outputs are written to temporary files and moved into place, so a failed run "
+            "never damages the result of an earlier one.\n\n" + CAUTION
+        ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    run.add_argument("project", metavar="PROJECT.toml", help="the project file")
+    run.add_argument("--out", metavar="DIR", required=True, help="folder for the outputs (created if missing)")
+    run.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    return parser
+
+
+def _run(args) -> int:
+    from .assessment import Assessment
+    from .project import load_project
+    from .summary import summarise
+
+    project = load_project(args.project)
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"--out {out}: exists and is not a folder")
+    progress = _Progress(sys.stderr.isatty() and not args.quiet)
+    try:
+        result = Assessment(project, progress).greenfield().result
+    finally:
+        progress.done()
+
+    import gis_out
+
+    out.mkdir(parents=True, exist_ok=True)
+    stem = Path(args.project).stem
+    gpkg = out / f"{stem}.gpkg"
+    summary_path = out / "summary.json"
+    gis_out.write_geopackage(gpkg, gis_out.frames(result))
+    summary = summarise(result, outputs={"geopackage": gpkg.name, "summary": summary_path.name})
+    gis_out.write_text_atomic(summary_path, json.dumps(summary, indent=2) + "\n")
+
+    if not args.quiet:
+        for warning in result.warnings:
+            print(f"warning: {warning}", file=sys.stderr)
+        peak = summary["max_settlement"]
+        if peak:
+            print(
+                f"max settlement {peak['settlement_mm']:.1f} mm at x={peak['x_m']:.1f}, y={peak['y_m']:.1f}; "
+                f"{len(result.grid)} grid nodes of {summary['grid']['threshold_mm']:g} mm or more"
+            )
+        print(f"wrote {gpkg} and {summary_path}")
+    return 0
+
+
+def main(argv=None) -> int:
+    args = _parser().parse_args(argv)
+    try:
+        if args.command == "run":
+            return _run(args)
+    except InputError as exc:
+        print(f"settle: error: {exc}", file=sys.stderr)
+        return InputError.exit_status
+    except Exception as exc:  # the outputs could not be written; the earlier result is untouched
+        import gis_out
+
+        if isinstance(exc, (OSError, gis_out.OutputError)):
+            print(f"settle: could not write the outputs: {exc}", file=sys.stderr)
+            return 1
+        raise
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

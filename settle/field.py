@@ -1,0 +1,229 @@
+"""Superposition of tunnel elements: movements at given places and on the project grid.
+
+Cost. Each element's settlement falls below the run's precision beyond its reach radius
+c = i sqrt(2 ln(Smax / precision)) (`Elements.reach_radius_m`), so on the grid it is evaluated only at the nodes of
+the rectangle within c of its length, found row by row (no candidate nodes are generated outside it). The work grows
+with the area that moves, summed over elements, not with grid nodes x elements; results are accumulated into square
+tiles, and only tiles that an element reaches exist.
+"""
+from __future__ import annotations
+
+from typing import Callable
+
+import numpy as np
+
+from .ground import GroundModel
+from .results import Movements, SettlementTiles
+from .route import Elements
+from .troughs import straight_tunnel_movements, subsurface_width_ratio
+
+FIELDS = ("settlement", "ux", "uy", "exx", "eyy", "exy", "sx", "sy")
+TILE_SIZE = 128
+PAIRS_PER_BATCH = 400_000
+
+
+def _element_movements(elements: Elements, e: np.ndarray, x, y, trough_width, axis_depth) -> dict:
+    """Movements of elements `e` at points (x, y), in project axes. Metres and strains as fractions."""
+    c = elements.direction[e]
+    dx = x - elements.start_xy[e, 0]
+    dy = y - elements.start_xy[e, 1]
+    cx, cy = c[:, 0], c[:, 1]
+    u = dx * cx + dy * cy
+    v = -dx * cy + dy * cx
+    m = straight_tunnel_movements(
+        u, v, elements.plan_length_m[e], elements.volume_per_m[e], trough_width, axis_depth
+    )
+    cxx, cyy, cxy = cx * cx, cy * cy, cx * cy
+    euu, evv, euv = m["strain_uu"], m["strain_vv"], m["strain_uv"]
+    return {
+        "settlement": m["settlement"],
+        "ux": m["du"] * cx - m["dv"] * cy,
+        "uy": m["du"] * cy + m["dv"] * cx,
+        "exx": cxx * euu - 2.0 * cxy * euv + cyy * evv,
+        "eyy": cyy * euu + 2.0 * cxy * euv + cxx * evv,
+        "exy": cxy * (euu - evv) + (cxx - cyy) * euv,
+        "sx": m["slope_u"] * cx - m["slope_v"] * cy,
+        "sy": m["slope_u"] * cy + m["slope_v"] * cx,
+    }
+
+
+def _to_movements(x, y, depth, sums: dict) -> Movements:
+    return Movements(
+        x_m=x,
+        y_m=y,
+        depth_m=depth,
+        settlement_mm=sums["settlement"] * 1e3,
+        ux_mm=sums["ux"] * 1e3,
+        uy_mm=sums["uy"] * 1e3,
+        strain_xx_ue=sums["exx"] * 1e6,
+        strain_yy_ue=sums["eyy"] * 1e6,
+        strain_xy_ue=sums["exy"] * 1e6,
+        slope_x=sums["sx"],
+        slope_y=sums["sy"],
+    )
+
+
+def _distance_to_element(elements: Elements, e: np.ndarray, x, y) -> np.ndarray:
+    """Plan distance from points to the axis of elements `e`. [m]"""
+    dx = x - elements.start_xy[e, 0]
+    dy = y - elements.start_xy[e, 1]
+    c = elements.direction[e]
+    u = dx * c[:, 0] + dy * c[:, 1]
+    v = -dx * c[:, 1] + dy * c[:, 0]
+    beyond = np.maximum(np.maximum(-u, u - elements.plan_length_m[e]), 0.0)
+    return np.hypot(beyond, v)
+
+
+def movements_at_points(elements: Elements, ground: GroundModel, x, y, depth) -> Movements:
+    """Movements at places, each at its own depth below the ground surface (0 = at the surface).
+
+    Every element is evaluated at every place (no cut-off), in batches. Below the surface the trough narrows with
+    depth (`troughs.subsurface_width_ratio`) and keeps its volume, so Smax(z) = Vs / (sqrt(2 pi) i(z)). Places at or
+    below the crown of an element that reaches them get NaN: the subsurface relations do not hold there.
+    """
+    x, y, depth = (np.asarray(a, dtype=float) for a in (x, y, depth))
+    n, m = len(x), len(elements)
+    sums = {f: np.zeros(n) for f in FIELDS}
+    below_crown = np.zeros(n, dtype=bool)
+    if m:
+        reach = elements.reach_radius_m(1e-9)  # about 6.4 i: beyond, nothing within a nanometre
+        per = max(1, PAIRS_PER_BATCH // m)
+        for lo in range(0, n, per):
+            hi = min(n, lo + per)
+            p = np.arange(lo, hi).repeat(m)
+            e = np.tile(np.arange(m), hi - lo)
+            z0 = elements.axis_depth_m[e]
+            d = depth[p]
+            crown = z0 - elements.outer_diameter_m[e] / 2.0
+            near = _distance_to_element(elements, e, x[p], y[p]) < reach[e]
+            deep = d >= crown
+            below_crown[p[deep & near]] = True
+            d_ok = np.where(deep, 0.0, d)
+            upper = elements.surface_level_m[e] - d_ok
+            share = ground.cohesive_fraction(upper, elements.axis_level_m[e])
+            i = elements.trough_width_m[e] * subsurface_width_ratio(d_ok, z0, share)
+            mov = _element_movements(elements, e, x[p], y[p], i, z0 - d_ok)
+            for f in FIELDS:
+                weights = np.where(deep, 0.0, mov[f])  # far below an element's crown: it does not reach there
+                sums[f][lo:hi] += np.bincount(p - lo, weights=weights, minlength=hi - lo)
+    for f in FIELDS:
+        sums[f][below_crown] = np.nan
+    return _to_movements(x, y, depth, sums)
+
+
+def _rows_in_rectangles(corners: np.ndarray, origin_y: float, h: float):
+    """Grid rows crossing each convex quadrilateral, with the x-range of the quadrilateral on each row.
+
+    corners: (n, 4, 2) in order around each quadrilateral. Returns (owner, row, x_min, x_max).
+    """
+    ys = corners[:, :, 1]
+    r0 = np.ceil((ys.min(axis=1) - origin_y) / h).astype(np.int64)
+    r1 = np.floor((ys.max(axis=1) - origin_y) / h).astype(np.int64)
+    count = np.maximum(r1 - r0 + 1, 0)
+    owner = np.repeat(np.arange(len(corners)), count)
+    first = np.repeat(np.cumsum(count) - count, count)
+    row = r0[owner] + (np.arange(owner.size) - first)
+    y = origin_y + row * h
+    x_min = np.full(owner.size, np.inf)
+    x_max = np.full(owner.size, -np.inf)
+    for k in range(4):
+        a, b = corners[owner, k], corners[owner, (k + 1) % 4]
+        dy = b[:, 1] - a[:, 1]
+        lo, hi = np.minimum(a[:, 1], b[:, 1]), np.maximum(a[:, 1], b[:, 1])
+        crosses = (y >= lo) & (y <= hi) & (dy != 0.0)
+        t = np.where(crosses, (y - a[:, 1]) / np.where(dy == 0.0, 1.0, dy), 0.0)
+        xc = a[:, 0] + t * (b[:, 0] - a[:, 0])
+        x_min = np.where(crosses, np.minimum(x_min, xc), x_min)
+        x_max = np.where(crosses, np.maximum(x_max, xc), x_max)
+    return owner, row, x_min, x_max
+
+
+def influence_corners(elements: Elements, precision_m: float) -> np.ndarray:
+    """Corners (n, 4, 2) of the rectangle around each element outside which it settles less than the precision."""
+    c = elements.reach_radius_m(precision_m)[:, None]
+    d = elements.direction
+    nrm = np.column_stack([-d[:, 1], d[:, 0]])
+    s = elements.start_xy
+    e = s + d * elements.plan_length_m[:, None]
+    return np.stack([s - d * c - nrm * c, e + d * c - nrm * c, e + d * c + nrm * c, s - d * c + nrm * c], axis=1)
+
+
+def settlement_grid(
+    elements: Elements,
+    spacing_m: float,
+    precision_m: float,
+    threshold_mm: float,
+    progress: Callable[[float], None] | None = None,
+) -> tuple[Movements, SettlementTiles, float]:
+    """Surface movements on the project grid, where the ground moves.
+
+    Returns the movements at every node whose settlement reaches `threshold_mm`, the settlement tiles (for contours),
+    and the volume of the surface trough summed over all nodes [m^3].
+    """
+    h = float(spacing_m)
+    corners = influence_corners(elements, precision_m) if len(elements) else np.empty((0, 4, 2))
+    if not len(elements):
+        empty = np.empty(0)
+        return _to_movements(empty, empty, empty, {f: empty for f in FIELDS}), SettlementTiles(h, 0.0, 0.0, TILE_SIZE), 0.0
+    ox = np.floor(corners[:, :, 0].min() / h) * h
+    oy = np.floor(corners[:, :, 1].min() / h) * h
+    ncols = int(np.ceil((corners[:, :, 0].max() - ox) / h)) + 1
+    tiles_across = ncols // TILE_SIZE + 1
+    T = TILE_SIZE
+    acc: dict[int, np.ndarray] = {}
+
+    # Batches of elements sized by the nodes they cover.
+    side_a, side_b = corners[:, 1] - corners[:, 0], corners[:, 3] - corners[:, 0]
+    area = np.abs(side_a[:, 0] * side_b[:, 1] - side_a[:, 1] * side_b[:, 0]) / (h * h)
+    batch_of = np.floor(np.cumsum(area) / PAIRS_PER_BATCH).astype(int)
+    for batch in np.unique(batch_of):
+        sel = np.flatnonzero(batch_of == batch)
+        owner, row, x_min, x_max = _rows_in_rectangles(corners[sel], oy, h)
+        c0 = np.ceil((x_min - ox) / h).astype(np.int64)
+        c1 = np.floor((x_max - ox) / h).astype(np.int64)
+        count = np.maximum(c1 - c0 + 1, 0)
+        run = np.repeat(np.arange(owner.size), count)
+        first = np.repeat(np.cumsum(count) - count, count)
+        col = c0[run] + (np.arange(run.size) - first)
+        r = row[run]
+        e = sel[owner[run]]
+        x = ox + col * h
+        y = oy + r * h
+        mov = _element_movements(
+            elements, e, x, y, elements.trough_width_m[e], elements.axis_depth_m[e]
+        )
+        tile = (r // T) * tiles_across + col // T
+        local = (r % T) * T + col % T
+        order = np.argsort(tile, kind="stable")
+        tile, local = tile[order], local[order]
+        bounds = np.flatnonzero(np.diff(tile)) + 1
+        for a, b in zip(np.concatenate([[0], bounds]), np.concatenate([bounds, [tile.size]])):
+            key = int(tile[a])
+            block = acc.get(key)
+            if block is None:
+                block = acc[key] = np.zeros((len(FIELDS), T * T))
+            idx = local[a:b]
+            for k, f in enumerate(FIELDS):
+                block[k] += np.bincount(idx, weights=mov[f][order[a:b]], minlength=T * T)
+        if progress:
+            progress(float(batch + 1) / (batch_of[-1] + 1))
+
+    tiles = SettlementTiles(spacing_m=h, origin_x_m=ox, origin_y_m=oy, size=T)
+    volume = 0.0
+    parts = {f: [] for f in FIELDS}
+    xs, ys = [], []
+    grid_r, grid_c = np.divmod(np.arange(T * T), T)
+    for key in sorted(acc):
+        block = acc[key]
+        tr, tc = divmod(key, tiles_across)
+        tiles.settlement_mm[(tr, tc)] = (block[0] * 1e3).reshape(T, T)
+        volume += float(block[0].sum()) * h * h
+        keep = block[0] * 1e3 >= threshold_mm
+        xs.append(ox + (tc * T + grid_c[keep]) * h)
+        ys.append(oy + (tr * T + grid_r[keep]) * h)
+        for k, f in enumerate(FIELDS):
+            parts[f].append(block[k][keep])
+    x = np.concatenate(xs)
+    y = np.concatenate(ys)
+    grid = _to_movements(x, y, np.zeros_like(x), {f: np.concatenate(parts[f]) for f in FIELDS})
+    return grid, tiles, volume

@@ -1,0 +1,445 @@
+"""The project file: a TOML file read into a validated `settle.model.Project`.
+
+Every path in the file is relative to the folder of the project file. Every mistake is an `InputError` of one line
+naming the file, the table (and item) and the key or row, what is wrong and the value given. A key the loader does not
+know is an error too, with the closest known key suggested: a typo never falls back silently to a default.
+
+Keys (units are in the names: _m metres, _mm millimetres, _pct per cent, _kn_m3 kN/m3; levels are elevations in
+the project's vertical datum, up positive)
+
+[project]
+    name                text, required.
+    crs                 text "EPSG:nnnn", required: a projected CRS whose axes are in metres (a geographic CRS or
+                        one in feet is an error). Every coordinate of the project is in it.
+[ground]
+    surface_level_m     number, flat ground surface level. Give this or surface_points, not both.
+    surface_points      path to a CSV with columns x, y, z [m]: at least 3 points not on one line; the surface is
+                        triangulated through them.
+    groundwater_level_m number, required.
+[[ground.layers]]       at least one, listed from the top down; each runs down to the next layer's top.
+    name                text, required.
+    top_level_m         number, required; strictly decreasing down the list.
+    unit_weight_kn_m3   number from 5 to 30, required.
+    trough_width_k      number from 0.1 to 1.5, required: trough width factor K (i = K z0).
+    behaviour           "cohesive" | "granular", required.
+[[drives]]              at least one shaft-to-shaft drive.
+    name                text, required, unique among the drives.
+    alignment           path, required: a CSV (columns x, y and exactly one of z = axis level, invert_z = invert
+                        level of the bore, depth_m = depth of the axis below the surface), or a GIS line layer with
+                        Z (.gpkg, .geojson, .json, .shp), vertices from the launch shaft to the reception shaft.
+    outer_diameter_m    number from 0.1 to 10, required: excavated diameter.
+    volume_loss_pct     number more than 0 and at most 20, required.
+    face_chainage_m     number, optional: chainage of the face, at least start_chainage_m; absent = drive complete.
+    inner_diameter_m    number, optional, more than 0 and less than outer_diameter_m; required when the
+                        alignment gives invert levels.
+    trough_width_k      number from 0.1 to 1.5, optional: overrides the layers' K for this drive.
+    start_chainage_m    number, default 0: chainage of the first vertex.
+    alignment_layer     text, optional (GIS only): layer to read; needed when the file has several layers.
+    alignment_feature   text, optional (GIS only): value of the `name` attribute of the line to use; needed when
+                        the layer holds several lines.
+    alignment_z         "axis" (default) | "invert" | "depth", optional (GIS only): what the line's Z is.
+[[drives.reaches]]      optional, per drive: parts of the drive with their own volume loss; must not overlap.
+    from_chainage_m     number, required.
+    to_chainage_m       number, required, more than from_chainage_m.
+    volume_loss_pct     number more than 0 and at most 20, required.
+    trough_width_k      number from 0.1 to 1.5, optional.
+[points]                optional.
+    file                path, required: a CSV with columns id, x, y and optional depth_m (>= 0 below the
+                        surface; the surface when absent). ids unique.
+[output]                required.
+    grid_spacing_m      number more than 0, required.
+    contour_levels_mm   list of numbers more than 0, strictly increasing, at least one, required.
+    grid_threshold_mm   number more than 0, default 0.1: the grid keeps nodes whose settlement reaches this.
+    precision_mm        number more than 0 and less than grid_threshold_mm, default 0.001.
+
+Example
+-------
+    [project]
+    name = "Mill Lane sewer"
+    crs = "EPSG:27700"
+
+    [ground]
+    surface_level_m = 12.0
+    groundwater_level_m = 9.5
+
+    [[ground.layers]]
+    name = "Made ground"
+    top_level_m = 12.0
+    unit_weight_kn_m3 = 18
+    trough_width_k = 0.5
+    behaviour = "granular"
+
+    [[drives]]
+    name = "S1-S2"
+    alignment = "s1_s2.csv"
+    outer_diameter_m = 1.8
+    volume_loss_pct = 1.0
+
+    [output]
+    grid_spacing_m = 1.0
+    contour_levels_mm = [1, 5, 10]
+"""
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import tomllib
+from pathlib import Path
+
+import pyproj
+
+from .errors import InputError
+from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output, Project, Reach, Surface
+from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,
+                     read_surface_points, shown)
+
+TOP_KEYS = ("project", "ground", "drives", "points", "output")
+PROJECT_KEYS = ("name", "crs")
+GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
+LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
+DRIVE_KEYS = ("name", "alignment", "outer_diameter_m", "volume_loss_pct", "face_chainage_m", "inner_diameter_m",
+              "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z", "reaches")
+GIS_ONLY_KEYS = ("alignment_layer", "alignment_feature", "alignment_z")
+REACH_KEYS = ("from_chainage_m", "to_chainage_m", "volume_loss_pct", "trough_width_k")
+POINTS_KEYS = ("file",)
+OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm")
+
+K_RANGE = dict(ge=0.1, le=1.5)  # trough width factor K [-]
+VOLUME_LOSS_RANGE = dict(gt=0.0, le=20.0)  # [%]
+
+# key suffix -> (words for "a number of ...", symbol after a bound)
+_UNITS = (("_kn_m3", "kN/m3", " kN/m3"), ("_mm", "millimetres", " mm"), ("_pct", "per cent", " %"),
+          ("_m", "metres", " m"))
+
+
+def load_project(path) -> Project:
+    """Read and check a project file.
+
+    Parameters
+    ----------
+    path : str or Path   The TOML project file; the paths inside it are relative to its folder.
+
+    Returns
+    -------
+    Project  Validated inputs, with `path` set and `warnings` for the user (e.g. a GIS layer without a CRS).
+
+    Raises
+    ------
+    InputError  For any mistake in the file or the files it names, with file, key or row in the message.
+    """
+    path = Path(path)
+    doc = _read_toml(path)
+    name = str(path)
+    _check_keys(doc, TOP_KEYS, name)
+    warnings: list[str] = []
+
+    head = _table(doc, "project", name)
+    where = f"{name} [project]"
+    _check_keys(head, PROJECT_KEYS, where)
+    title = _text(head, "name", where)
+    crs = _crs(head, where, warnings)
+
+    ground = _ground(_table(doc, "ground", name), name, path.parent)
+    drives = _drives(doc, name, path.parent, crs, warnings)
+    points = None
+    if "points" in doc:
+        where = f"{name} [points]"
+        table = _table(doc, "points", name)
+        _check_keys(table, POINTS_KEYS, where)
+        points = read_points(_path(table, "file", where, path.parent))
+    output = _output(_table(doc, "output", name), f"{name} [output]")
+    return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
+                   warnings=tuple(warnings))
+
+
+# ------------------------------------------------------------------------------------------------ generic helpers
+def _read_toml(path: Path) -> dict:
+    """The parsed TOML document; a missing file or a syntax error is an InputError naming the file."""
+    try:
+        with open(path, "rb") as stream:
+            return tomllib.load(stream)
+    except FileNotFoundError:
+        raise InputError(f"{path}: project file not found (looked for {path.resolve()})") from None
+    except IsADirectoryError:
+        raise InputError(f"{path}: is a folder; give the project file (.toml)") from None
+    except OSError as exc:
+        raise InputError(f"{path}: cannot be read: {exc.strerror}") from None
+    except UnicodeDecodeError:
+        raise InputError(f"{path}: not UTF-8 text") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{path}: not valid TOML: {exc}") from None
+
+
+def _named(table: dict, where: str) -> str:
+    """`where` followed by the item's name when it has a usable one, e.g. `... [[drives]] #2 "East"`."""
+    name = table.get("name")
+    return f"{where} {shown(name)}" if isinstance(name, str) and name.strip() else where
+
+
+def _check_keys(table: dict, allowed, where: str) -> None:
+    """Raise InputError for the first key of `table` not in `allowed`, suggesting the closest known key."""
+    for key in table:
+        if key not in allowed:
+            close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+            hint = f'did you mean "{close[0]}"?' if close else f"known keys: {', '.join(allowed)}"
+            raise InputError(f'{where}: unknown key "{key}"; {hint}')
+
+
+def _table(doc: dict, key: str, where: str, required: bool = True) -> dict:
+    """The sub-table `[key]` of `doc`; missing (when required) or not a table is an InputError."""
+    if key not in doc:
+        if required:
+            raise InputError(f"{where}: missing table [{key}]")
+        return {}
+    if not isinstance(doc[key], dict):
+        raise InputError(f"{where}: [{key}] must be a table (a [{key}] header with keys under it); "
+                         f"got {shown(doc[key])}")
+    return doc[key]
+
+
+def _tables(doc: dict, key: str, label: str, where: str) -> list[dict]:
+    """The array of tables `[[label]]` under `key`: at least one, each a table."""
+    if key not in doc:
+        raise InputError(f"{where}: missing [[{label}]]; give at least one")
+    items = doc[key]
+    if not isinstance(items, list) or not items or not all(isinstance(item, dict) for item in items):
+        got = "a single table" if isinstance(items, dict) else shown(items)
+        raise InputError(f"{where}: {key} must be one or more tables, each under a [[{label}]] header; got {got}")
+    return items
+
+
+def _unit(key: str) -> tuple[str, str]:
+    """(words, symbol) of the unit a key's suffix names; ("", "") for a dimensionless key."""
+    name = key.split(" ")[0]  # "contour_levels_mm item 2" -> "contour_levels_mm"
+    for suffix, words, symbol in _UNITS:
+        if name.endswith(suffix):
+            return words, symbol
+    return "", ""
+
+
+def _bounds(gt, ge, le, lt, symbol: str) -> str:
+    """Allowed range as words, e.g. "from 0.1 to 10 m"."""
+    if ge is not None and le is not None:
+        return f"from {ge:g} to {le:g}{symbol}"
+    parts = [f"{word} {bound:g}" for word, bound in
+             (("more than", gt), ("at least", ge), ("at most", le), ("less than", lt)) if bound is not None]
+    return " and ".join(parts) + symbol
+
+
+def _number(table: dict, key: str, where: str, *, required: bool = True, default: float | None = None,
+            gt: float | None = None, ge: float | None = None, le: float | None = None,
+            lt: float | None = None) -> float | None:
+    """Value of `key` as a float, checked against the bounds (gt: >, ge: >=, le: <=, lt: <).
+
+    A missing key gives `default` unless `required`; a bool, text or non-finite value is an InputError naming the
+    key and the value given.
+    """
+    if key not in table:
+        if required:
+            raise InputError(f"{where}: missing required key {key}")
+        return default
+    value = table[key]
+    words, symbol = _unit(key)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        positive = "positive " if (gt is not None and gt >= 0) or (ge is not None and ge > 0) else ""
+        kind = f"a {positive}number" + (f" of {words}" if words else "")
+        raise InputError(f"{where}: {key} must be {kind}; got {shown(value)}")
+    if ((gt is not None and not value > gt) or (ge is not None and not value >= ge)
+            or (le is not None and not value <= le) or (lt is not None and not value < lt)):
+        raise InputError(f"{where}: {key} must be {_bounds(gt, ge, le, lt, symbol)}; got {shown(value)}")
+    return float(value)
+
+
+def _text(table: dict, key: str, where: str, *, required: bool = True, choices=None,
+          default: str | None = None) -> str | None:
+    """Value of `key` as non-empty text, one of `choices` when given."""
+    if key not in table:
+        if required:
+            raise InputError(f"{where}: missing required key {key}")
+        return default
+    value = table[key]
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(f"{where}: {key} must be non-empty text in quotes; got {shown(value)}")
+    if choices is not None and value not in choices:
+        raise InputError(f"{where}: {key} must be one of {', '.join(map(shown, choices))}; got {shown(value)}")
+    return value
+
+
+def _path(table: dict, key: str, where: str, folder: Path) -> Path:
+    """The file `key` names, relative to the project folder; it must exist."""
+    value = _text(table, key, where)
+    path = folder / value
+    if not path.exists():
+        raise InputError(f"{where}: {key} = {shown(value)}: file not found: {path.resolve()}")
+    if path.is_dir():
+        raise InputError(f"{where}: {key} = {shown(value)}: a folder, not a file: {path.resolve()}")
+    return path
+
+
+# ------------------------------------------------------------------------------------------------------- sections
+def _crs(table: dict, where: str, warnings: list[str]) -> str:
+    """The project CRS as "EPSG:nnnn": projected, with axes in metres."""
+    value = _text(table, "crs", where)
+    if not re.fullmatch(r"EPSG:\d+", value.strip(), flags=re.IGNORECASE):
+        raise InputError(f'{where}: crs must be an EPSG code written "EPSG:nnnn" (e.g. "EPSG:27700"); '
+                         f"got {shown(value)}")
+    code = value.strip().upper()
+    try:
+        crs = pyproj.CRS.from_user_input(code)
+    except pyproj.exceptions.CRSError:
+        raise InputError(f"{where}: crs {shown(value)} is not a known EPSG coordinate reference system") from None
+    plan = crs.sub_crs_list[0] if crs.is_compound else crs
+    if not plan.is_projected:
+        raise InputError(f"{where}: crs {shown(value)} ({crs.name}) is not projected (its coordinates are "
+                         f"angles); give a projected CRS in metres")
+    units = {axis.unit_name for axis in plan.axis_info}
+    if units != {"metre"}:
+        raise InputError(f"{where}: crs {shown(value)} ({crs.name}) has axes in {', '.join(sorted(units))}; "
+                         f"give a projected CRS in metres")
+    method = plan.coordinate_operation.method_name if plan.coordinate_operation else ""
+    if "Pseudo Mercator" in method:
+        warnings.append(f"{where}: crs {code} is Web Mercator, whose metres are not ground metres away from the "
+                        "equator; lengths, offsets and volumes will be wrong; prefer a national grid or UTM zone")
+    return code
+
+
+def _ground(table: dict, file: str, folder: Path) -> Ground:
+    """[ground] and its [[ground.layers]]."""
+    where = f"{file} [ground]"
+    _check_keys(table, GROUND_KEYS, where)
+    if ("surface_level_m" in table) == ("surface_points" in table):
+        given = "both" if "surface_level_m" in table else "neither"
+        raise InputError(f"{where}: give exactly one of surface_level_m (flat ground) or surface_points "
+                         f"(CSV of x, y, z); got {given}")
+    if "surface_level_m" in table:
+        surface = Surface(level_m=_number(table, "surface_level_m", where), source=f"{where} surface_level_m")
+    else:
+        surface = read_surface_points(_path(table, "surface_points", where, folder))
+    water = _number(table, "groundwater_level_m", where)
+    layers = []
+    for i, item in enumerate(_tables(table, "layers", "ground.layers", where), start=1):
+        layers.append(_layer(item, f"{file} [[ground.layers]] #{i}", layers[-1] if layers else None))
+    return Ground(surface=surface, groundwater_level_m=water, layers=tuple(layers))
+
+
+def _layer(table: dict, where: str, above: Layer | None) -> Layer:
+    """One [[ground.layers]] item; its top must lie below the top of the layer `above`."""
+    where = _named(table, where)
+    _check_keys(table, LAYER_KEYS, where)
+    name = _text(table, "name", where)
+    top = _number(table, "top_level_m", where)
+    if above is not None and not top < above.top_level_m:
+        raise InputError(f'{where}: top_level_m must be below the top of the layer above ("{above.name}", '
+                         f"{above.top_level_m:g} m): layers go from the top down; got {shown(table['top_level_m'])}")
+    return Layer(name=name, top_level_m=top,
+                 unit_weight_kn_m3=_number(table, "unit_weight_kn_m3", where, ge=5.0, le=30.0),
+                 trough_width_k=_number(table, "trough_width_k", where, **K_RANGE),
+                 behaviour=_text(table, "behaviour", where, choices=BEHAVIOURS))
+
+
+def _drives(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]) -> tuple[Drive, ...]:
+    """Every [[drives]] item; names unique."""
+    drives: list[Drive] = []
+    for i, item in enumerate(_tables(doc, "drives", "drives", file), start=1):
+        drive = _drive(item, f"{file} [[drives]] #{i}", folder, crs, warnings)
+        for j, other in enumerate(drives, start=1):
+            if other.name == drive.name:
+                raise InputError(f"{file} [[drives]] #{i} {shown(drive.name)}: name is already used by "
+                                 f"[[drives]] #{j}; drive names must be unique")
+        drives.append(drive)
+    return tuple(drives)
+
+
+def _drive(table: dict, where: str, folder: Path, crs: str, warnings: list[str]) -> Drive:
+    """One [[drives]] item, with its alignment read and checked."""
+    where = _named(table, where)
+    _check_keys(table, DRIVE_KEYS, where)
+    name = _text(table, "name", where)
+    outer = _number(table, "outer_diameter_m", where, ge=0.1, le=10.0)
+    inner = _number(table, "inner_diameter_m", where, required=False, gt=0.0, lt=outer)
+    start = _number(table, "start_chainage_m", where, required=False, default=0.0)
+    face = _number(table, "face_chainage_m", where, required=False, ge=start)
+    volume_loss = _number(table, "volume_loss_pct", where, **VOLUME_LOSS_RANGE)
+    k = _number(table, "trough_width_k", where, required=False, **K_RANGE)
+    reaches = _reaches(table, where)
+    alignment = _alignment(table, where, folder, crs)
+    warnings.extend(alignment.warnings)
+    if alignment.vertical == "invert" and inner is None:
+        raise InputError(f"{where}: the alignment gives invert levels ({alignment.source}); inner_diameter_m is "
+                         "needed to find the axis")
+    return Drive(name=name, alignment_xy=alignment.xy, alignment_v=alignment.v, vertical=alignment.vertical,
+                 outer_diameter_m=outer, volume_loss_pct=volume_loss, inner_diameter_m=inner, trough_width_k=k,
+                 face_chainage_m=face, start_chainage_m=start, reaches=reaches, source=alignment.source)
+
+
+def _alignment(table: dict, where: str, folder: Path, crs: str) -> Alignment:
+    """The drive's alignment file, CSV or GIS by its suffix; GIS-only keys with a CSV are an error."""
+    path = _path(table, "alignment", where, folder)
+    suffix = path.suffix.lower()
+    if suffix == ".csv":
+        for key in GIS_ONLY_KEYS:
+            if key in table:
+                raise InputError(f"{where}: {key} applies only to a GIS alignment ({', '.join(GIS_SUFFIXES)}); "
+                                 f"{path.name} is a CSV, whose vertical column (z, invert_z or depth_m) says what "
+                                 "its values are")
+        return read_alignment_csv(path)
+    if suffix in GIS_SUFFIXES:
+        return read_alignment_gis(path, crs, z_means=_text(table, "alignment_z", where, required=False,
+                                                            choices=VERTICAL_REFERENCES, default="axis"),
+                                  layer=_text(table, "alignment_layer", where, required=False),
+                                  feature=_text(table, "alignment_feature", where, required=False))
+    raise InputError(f"{where}: alignment must be a .csv file or a GIS line layer ({', '.join(GIS_SUFFIXES)}); "
+                     f"got {shown(table['alignment'])}")
+
+
+def _reaches(drive: dict, where: str) -> tuple[Reach, ...]:
+    """The drive's [[drives.reaches]], sorted by from_chainage_m; overlapping reaches are an error naming both."""
+    if "reaches" not in drive:
+        return ()
+    items = []
+    for i, table in enumerate(_tables(drive, "reaches", "drives.reaches", where), start=1):
+        at = f"{where} [[drives.reaches]] #{i}"
+        _check_keys(table, REACH_KEYS, at)
+        start = _number(table, "from_chainage_m", at)
+        reach = Reach(from_chainage_m=start, to_chainage_m=_number(table, "to_chainage_m", at, gt=start),
+                      volume_loss_pct=_number(table, "volume_loss_pct", at, **VOLUME_LOSS_RANGE),
+                      trough_width_k=_number(table, "trough_width_k", at, required=False, **K_RANGE))
+        items.append((i, reach))
+    items.sort(key=lambda item: item[1].from_chainage_m)
+    for (i, a), (j, b) in zip(items[:-1], items[1:]):
+        if b.from_chainage_m < a.to_chainage_m:
+            raise InputError(f"{where}: [[drives.reaches]] #{i} ({a.from_chainage_m:g} to {a.to_chainage_m:g} m) "
+                             f"and #{j} ({b.from_chainage_m:g} to {b.to_chainage_m:g} m) overlap")
+    return tuple(reach for _, reach in items)
+
+
+def _output(table: dict, where: str) -> Output:
+    """[output]: grid spacing, contour levels, grid threshold and precision."""
+    _check_keys(table, OUTPUT_KEYS, where)
+    spacing = _number(table, "grid_spacing_m", where, gt=0.0)
+    levels = _levels(table, "contour_levels_mm", where)
+    threshold = _number(table, "grid_threshold_mm", where, required=False, default=0.1, gt=0.0)
+    precision = _number(table, "precision_mm", where, required=False, default=0.001, gt=0.0)
+    if not precision < threshold:
+        raise InputError(f"{where}: precision_mm must be less than grid_threshold_mm ({threshold:g} mm); "
+                         f"got {precision:g}")
+    return Output(grid_spacing_m=spacing, contour_levels_mm=levels, grid_threshold_mm=threshold,
+                  precision_mm=precision)
+
+
+def _levels(table: dict, key: str, where: str) -> tuple[float, ...]:
+    """A non-empty, strictly increasing list of positive numbers. [mm]"""
+    if key not in table:
+        raise InputError(f"{where}: missing required key {key}")
+    value = table[key]
+    if not isinstance(value, list) or not value:
+        raise InputError(f"{where}: {key} must be a non-empty list of millimetres, e.g. [1, 5, 10]; "
+                         f"got {shown(value)}")
+    levels = tuple(_number({f"{key} item {j}": v}, f"{key} item {j}", where, gt=0.0)
+                   for j, v in enumerate(value, start=1))
+    for j in range(1, len(levels)):
+        if not levels[j] > levels[j - 1]:
+            raise InputError(f"{where}: {key} must increase strictly; item {j + 1} ({levels[j]:g}) follows "
+                             f"{levels[j - 1]:g}")
+    return levels

@@ -1,0 +1,93 @@
+"""The run's summary (summary.json): the numbers an engineer looks at first, and the checks behind them.
+
+Reproducible: the same project gives the same summary (no timestamps, no timings).
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from . import __version__
+from .results import Movements, Result
+
+CAUTION = (
+    "Greenfield estimates for planning. They support, and do not replace, the judgement of a qualified engineer "
+    "and local codes; where a result approaches a limit, a detailed assessment is needed."
+)
+
+
+def _r(value, digits=3):
+    """Round for the summary; NaN becomes null."""
+    value = float(value)
+    return None if np.isnan(value) else round(value, digits)
+
+
+def _peak(m: Movements, values: np.ndarray, name: str, unit_digits=3) -> dict | None:
+    if len(m) == 0 or np.all(np.isnan(values)):
+        return None
+    k = int(np.nanargmax(values))
+    return {name: _r(values[k], unit_digits), "x_m": _r(m.x_m[k], 2), "y_m": _r(m.y_m[k], 2)}
+
+
+def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
+    """A JSON-ready dict of the run."""
+    p = result.project
+    grid = result.grid
+    drives = []
+    for d in result.drives:
+        k = int(np.argmin(d.cover_m))
+        drives.append(
+            {
+                "name": d.name,
+                "start_chainage_m": _r(d.start_chainage_m, 2),
+                "end_chainage_m": _r(d.end_chainage_m, 2),
+                "face_chainage_m": None if d.face_chainage_m is None else _r(d.face_chainage_m, 2),
+                "excavated_to_m": _r(d.excavated_to_m, 2),
+                "outer_diameter_m": d.outer_diameter_m,
+                "min_cover_m": _r(d.cover_m[k], 2),
+                "min_cover_at_vertex_chainage_m": _r(d.chainage_m[k], 2),
+                "axis_depth_range_m": [_r(d.axis_depth_m.min(), 2), _r(d.axis_depth_m.max(), 2)],
+                "lost_volume_m3": _r(d.lost_volume_m3, 4),
+                "tunnel_elements": d.element_count,
+            }
+        )
+    lost = result.lost_volume_m3
+    summary = {
+        "project": p.name,
+        "crs": p.crs,
+        "settle_version": __version__,
+        "caution": CAUTION,
+        "sign_conventions": "settlement positive downward; ux east, uy north; strain tensile positive (microstrain)",
+        "drives": drives,
+        "grid": {
+            "spacing_m": p.output.grid_spacing_m,
+            "nodes_reported": len(grid),
+            "threshold_mm": p.output.grid_threshold_mm,
+            "precision_mm": p.output.precision_mm,
+        },
+        "max_settlement": _peak(grid, grid.settlement_mm, "settlement_mm"),
+        "max_tilt": _peak(grid, grid.tilt, "tilt", 6),
+        "max_tensile_strain": _peak(grid, grid.strain_max_ue, "strain_ue", 1),
+        "max_compressive_strain": _peak(grid, -grid.strain_min_ue, "strain_ue", 1),
+        "volume_check": {
+            "lost_volume_m3": _r(lost, 4),
+            "surface_trough_volume_m3": _r(result.settlement_volume_m3, 4),
+            "difference_pct": _r(100.0 * (result.settlement_volume_m3 - lost) / lost, 4) if lost > 0 else None,
+        },
+        "warnings": list(result.warnings),
+    }
+    if result.points is not None:
+        pts = result.points
+        summary["points"] = {
+            "count": len(pts),
+            "max_settlement": None
+            if np.all(np.isnan(pts.settlement_mm))
+            else {
+                "id": result.point_ids[int(np.nanargmax(pts.settlement_mm))],
+                "settlement_mm": _r(np.nanmax(pts.settlement_mm)),
+            },
+        }
+    if summary["max_compressive_strain"]:  # reported as a signed (negative) strain
+        summary["max_compressive_strain"]["strain_ue"] *= -1
+    if outputs:
+        summary["outputs"] = outputs
+    return summary

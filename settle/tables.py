@@ -1,0 +1,394 @@
+"""Reading the files a project points to: CSV tables and GIS line layers, with errors that name the file and the row.
+
+CSV files
+    UTF-8 text (a byte-order mark written by a spreadsheet is fine), comma separated, one header line of column names.
+    A row is named by its line number in the file, header = line 1: the same number a spreadsheet shows beside the
+    row. Extra columns are ignored, rows whose cells are all empty are skipped, and an empty or non-numeric cell in a
+    column that is used is an error naming the row and the column (never a silent default).
+
+GIS line layers (.gpkg, .geojson / .json, .shp)
+    Read with pyogrio. The line must be a LineString, or a MultiLineString of one part, WITH Z. x, y are reprojected
+    to the project CRS when the layer has another CRS; a layer with no CRS is taken to be in the project CRS (the
+    reader returns a warning saying so). Z is never changed.
+
+Alignment checks (both sources)
+    at least 2 vertices; no two consecutive vertices at the same plan position (closer than `PLAN_TOLERANCE_M`): the
+    same level too means a repeated vertex, a different level a vertical step, and both are errors; no vertex where
+    the plan turning angle between the segments either side is 90 degrees or more (the route doubles back); depths
+    below the surface (depth_m / alignment_z = "depth") more than 0.
+"""
+from __future__ import annotations
+
+import csv
+import warnings as python_warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pyogrio
+import pyproj
+import shapely
+
+from .errors import InputError, where
+from .model import Points, Surface
+
+GIS_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp")
+CSV_VERTICAL_COLUMNS = {"z": "axis", "invert_z": "invert", "depth_m": "depth"}  # column -> Drive.vertical
+PLAN_TOLERANCE_M = 0.001  # vertices closer than this in plan are at the same plan position [m]
+LEVEL_TOLERANCE_M = 0.001  # vertical values closer than this are the same [m]
+MAX_TURN_DEG = 90.0  # a plan turn of this or more means the route doubles back [deg]
+ANGLE_TOLERANCE_DEG = 1e-9  # turns this close to MAX_TURN_DEG count as reaching it (rounding of cos 90) [deg]
+
+
+def shown(value) -> str:
+    """A value as a message shows it: text in double quotes, TOML's true/false, "a table" for a table."""
+    if isinstance(value, str):
+        return f'"{value}"'
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, dict):
+        return "a table"
+    return str(value)
+
+
+def _listing(names, limit: int = 20) -> str:
+    """Comma-separated quoted names, cut after `limit`."""
+    names = [shown(str(n)) for n in names]
+    more = f", ... ({len(names) - limit} more)" if len(names) > limit else ""
+    return ", ".join(names[:limit]) + more
+
+
+# --------------------------------------------------------------------------------------------------------- CSV tables
+@dataclass(frozen=True)
+class CsvTable:
+    """The cells of a CSV file, as text, with the line number of each row.
+
+    `cells[r][c]` is the stripped text of row r, column c (rows padded with "" to the header's width);
+    `lines[r]` is the line in the file where row r ends (header = line 1).
+    """
+
+    path: Path
+    header: tuple[str, ...]
+    cells: tuple[tuple[str, ...], ...]
+    lines: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.cells)
+
+    def has(self, name: str) -> bool:
+        """True when the header holds column `name`."""
+        return name in self.header
+
+    def require(self, *names: str) -> None:
+        """Raise InputError naming the first missing column and listing the columns found."""
+        for name in names:
+            if name not in self.header:
+                hint = ""
+                if len(self.header) == 1 and ";" in self.header[0]:
+                    hint = " (the header seems to use ';' between columns; the file must use ',')"
+                raise InputError(f"{self.path}: missing column {shown(name)}; columns found: "
+                                 f"{_listing(self.header) or 'none'}{hint}")
+
+    def texts(self, name: str) -> tuple[str, ...]:
+        """Column `name` as text; an empty cell is an error naming the row."""
+        self.require(name)
+        col = self.header.index(name)
+        for line, row in zip(self.lines, self.cells):
+            if row[col] == "":
+                raise InputError(f"{where(self.path, row=int(line))}: column {shown(name)} is empty")
+        return tuple(row[col] for row in self.cells)
+
+    def numbers(self, name: str, gt: float | None = None, ge: float | None = None) -> np.ndarray:
+        """Column `name` as floats; an empty, non-numeric or non-finite cell, or one not `> gt` / `>= ge`, is an
+        error naming the row and the column. [units of the column]"""
+        text = self.texts(name)
+        values = np.empty(len(text))
+        for r, cell in enumerate(text):
+            try:
+                values[r] = float(cell)
+            except ValueError:
+                raise InputError(f"{where(self.path, row=int(self.lines[r]))}: column {shown(name)} is not a "
+                                 f"number; got {shown(cell)}") from None
+        bad = ~np.isfinite(values)
+        if gt is not None:
+            bad |= ~(values > gt)
+        if ge is not None:
+            bad |= ~(values >= ge)
+        if bad.any():
+            r = int(np.argmax(bad))
+            bound = f" more than {gt:g}" if gt is not None else f" at least {ge:g}" if ge is not None else ""
+            kind = f"number{bound}" if bound else "finite number"
+            raise InputError(f"{where(self.path, row=int(self.lines[r]))}: column {shown(name)} must be a {kind}; "
+                             f"got {shown(text[r])}")
+        return values
+
+
+def read_csv(path) -> CsvTable:
+    """Read a CSV file with one header line into a `CsvTable` (text cells; nothing converted yet)."""
+    path = Path(path)
+    rows, lines = [], []
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as stream:
+            reader = csv.reader(stream)
+            for row in reader:
+                rows.append([cell.strip() for cell in row])
+                lines.append(reader.line_num)
+    except UnicodeDecodeError:
+        raise InputError(f"{path}: not UTF-8 text; save the table as CSV UTF-8") from None
+    except csv.Error as exc:
+        raise InputError(f"{where(path, row=len(lines) + 1)}: not valid CSV: {exc}") from None
+    except OSError as exc:
+        raise InputError(f"{path}: cannot be read: {exc.strerror}") from None
+    if not rows or not any(rows[0]):
+        raise InputError(f"{path}: no header line; the first line must name the columns")
+    header = tuple(rows[0])
+    named = [h for h in header if h]
+    repeated = sorted({h for h in named if named.count(h) > 1})
+    if repeated:
+        raise InputError(f"{where(path, row=1)}: column {shown(repeated[0])} appears more than once in the header")
+    width = len(header)
+    cells, kept = [], []
+    for row, line in zip(rows[1:], lines[1:]):
+        if not any(row):
+            continue  # blank line, or a row of empty cells from a spreadsheet
+        if any(row[width:]):
+            raise InputError(f"{where(path, row=line)}: {len(row)} cells but the header names {width} columns "
+                             f"(a decimal comma, or a stray ','?)")
+        cells.append(tuple(row[:width]) + ("",) * (width - len(row)))
+        kept.append(line)
+    return CsvTable(path, header, tuple(cells), np.asarray(kept, dtype=int))
+
+
+# ------------------------------------------------------------------------------------------------- surface, points
+def read_surface_points(path) -> Surface:
+    """Ground surface points from a CSV with columns x, y, z [m] in the project CRS: at least 3, not all on one line,
+    no plan position given twice (to the millimetre)."""
+    table = read_csv(path)
+    table.require("x", "y", "z")
+    xyz = np.column_stack([table.numbers("x"), table.numbers("y"), table.numbers("z")])
+    if len(xyz) < 3:
+        raise InputError(f"{path}: {len(xyz)} surface point(s); need at least 3 not on one line")
+    centred = xyz[:, :2] - xyz[:, :2].mean(axis=0)
+    normal = np.linalg.svd(centred, full_matrices=False)[2][-1]  # plan direction across the best-fit line
+    if np.abs(centred @ normal).max() < PLAN_TOLERANCE_M:
+        raise InputError(f"{path}: all {len(xyz)} surface points lie on one line in plan; "
+                         "a surface needs points spread in two directions")
+    key = np.round(xyz[:, :2] / PLAN_TOLERANCE_M)
+    order = np.lexsort((key[:, 1], key[:, 0]))
+    same = np.all(key[order[1:]] == key[order[:-1]], axis=1)
+    if same.any():
+        a, b = sorted(order[np.argmax(same):][:2])
+        raise InputError(f"{path}: rows {table.lines[a]} and {table.lines[b]} give the same plan position "
+                         f"({xyz[a, 0]:.3f}, {xyz[a, 1]:.3f}); keep one")
+    return Surface(points_xyz=xyz, source=str(path))
+
+
+def read_points(path) -> Points:
+    """Report points from a CSV with columns id, x, y [m] and optional depth_m [m below the surface, >= 0; 0 when
+    the column is absent]. ids must be unique."""
+    table = read_csv(path)
+    table.require("id", "x", "y")
+    if len(table) == 0:
+        raise InputError(f"{path}: no points below the header")
+    ids = table.texts("id")
+    seen: dict[str, int] = {}
+    for line, name in zip(table.lines, ids):
+        if name in seen:
+            raise InputError(f"{where(path, row=int(line))}: id {shown(name)} is already used on row {seen[name]}")
+        seen[name] = int(line)
+    depth = table.numbers("depth_m", ge=0.0) if table.has("depth_m") else np.zeros(len(table))
+    return Points(ids=ids, x_m=table.numbers("x"), y_m=table.numbers("y"), depth_m=depth, source=str(path))
+
+
+# ---------------------------------------------------------------------------------------------------- alignments
+@dataclass(frozen=True)
+class Alignment:
+    """A drive's vertices as read: plan xy (n x 2) [m] in the project CRS, one vertical value per vertex [m] whose
+    meaning `vertical` gives ("axis" | "invert" | "depth", see `settle.model.Drive`), where it came from, and
+    warnings for the user."""
+
+    xy: np.ndarray
+    v: np.ndarray
+    vertical: str
+    source: str
+    warnings: tuple[str, ...] = ()
+
+
+def check_alignment(xy, v, vertical: str, source: str, labels) -> None:
+    """Raise InputError for a polyline a drive cannot follow.
+
+    Parameters
+    ----------
+    xy : (n, 2) array        Plan vertices. [m]
+    v : (n,) array           Vertical value per vertex. [m]
+    vertical : str           What v means; "depth" values must be more than 0.
+    source : str             File (and layer, feature) for messages.
+    labels : sequence of str One per vertex, e.g. "row 5" or "vertex 3".
+    """
+    n = len(xy)
+    if n < 2:
+        raise InputError(f"{source}: the alignment has {n} {'vertex' if n == 1 else 'vertices'}; a drive needs at "
+                         "least 2")
+    if vertical == "depth" and not np.all(v > 0):
+        k = int(np.argmin(v > 0))
+        raise InputError(f"{source} {labels[k]}: depth of the axis below the surface must be more than 0; "
+                         f"got {v[k]:g}")
+    seg = np.diff(xy, axis=0)
+    plan = np.hypot(seg[:, 0], seg[:, 1])
+    short = plan < PLAN_TOLERANCE_M
+    if short.any():
+        k = int(np.argmax(short))
+        first, second = labels[k], labels[k + 1]
+        if abs(v[k + 1] - v[k]) < LEVEL_TOLERANCE_M:
+            raise InputError(f"{source} {second}: repeats the vertex of {first} (same plan position and level); "
+                             "remove one")
+        raise InputError(f"{source} {second}: same plan position as {first} but another level "
+                         f"({v[k]:g} then {v[k + 1]:g}); a drive cannot step vertically")
+    cross = seg[:-1, 0] * seg[1:, 1] - seg[:-1, 1] * seg[1:, 0]
+    dot = np.einsum("ij,ij->i", seg[:-1], seg[1:])
+    turn_deg = np.degrees(np.arctan2(np.abs(cross), dot))
+    back = turn_deg >= MAX_TURN_DEG - ANGLE_TOLERANCE_DEG
+    if back.any():
+        k = int(np.argmax(back)) + 1
+        raise InputError(f"{source} {labels[k]}: the alignment turns {turn_deg[k - 1]:.1f} degrees in plan here "
+                         f"({MAX_TURN_DEG:g} or more: it doubles back)")
+
+
+def read_alignment_csv(path) -> Alignment:
+    """A drive alignment from a CSV with columns x, y [m, project CRS] and exactly one of z (axis level), invert_z
+    (invert level of the bore) or depth_m (depth of the axis below the surface). [m]"""
+    table = read_csv(path)
+    table.require("x", "y")
+    given = [c for c in CSV_VERTICAL_COLUMNS if table.has(c)]
+    if len(given) != 1:
+        problem = "none of" if not given else f"{len(given)} of"
+        raise InputError(f"{path}: needs exactly one vertical column, z (axis level), invert_z (invert level) or "
+                         f"depth_m (axis depth below the surface); found {problem} them; columns found: "
+                         f"{_listing(table.header)}")
+    xy = np.column_stack([table.numbers("x"), table.numbers("y")])
+    v = table.numbers(given[0])
+    vertical = CSV_VERTICAL_COLUMNS[given[0]]
+    check_alignment(xy, v, vertical, str(path), [f"row {line}" for line in table.lines])
+    return Alignment(xy=xy, v=v, vertical=vertical, source=str(path))
+
+
+def _choose_layer(path: Path, layer: str | None, layer_key: str) -> str:
+    """The layer to read: the one named, or the only layer with geometry."""
+    try:
+        listed = pyogrio.list_layers(path)
+    except (pyogrio.errors.DataSourceError, OSError) as exc:
+        raise InputError(f"{path}: cannot be read as a GIS file: {exc}") from None
+    names = [str(name) for name, _ in listed]
+    if layer is not None:
+        if layer not in names:
+            raise InputError(f"{path}: no layer {shown(layer)} ({layer_key}); layers found: {_listing(names)}")
+        return layer
+    spatial = [str(name) for name, geometry in listed if geometry is not None]
+    if len(spatial) != 1:
+        raise InputError(f"{path}: holds {len(spatial)} layers with geometry ({_listing(spatial)}); "
+                         f"choose one with {layer_key}")
+    return spatial[0]
+
+
+def _choose_feature(frame, source: str, feature: str | None, feature_key: str):
+    """The one line of the layer: the feature whose `name` attribute equals `feature`, or the only feature."""
+    names = [str(n) for n in frame["name"]] if "name" in frame.columns else None
+    if feature is None:
+        if len(frame) != 1:
+            found = f"names found: {_listing(names)}" if names else "the layer has no name attribute"
+            raise InputError(f"{source}: holds {len(frame)} features; choose one with {feature_key} "
+                             f"(the value of its name attribute); {found}")
+        return frame.geometry.iloc[0]
+    if names is None:
+        raise InputError(f"{source}: {feature_key} = {shown(feature)} but the layer has no name attribute; "
+                         f"attributes found: {_listing(c for c in frame.columns if c != 'geometry') or 'none'}")
+    hits = [i for i, n in enumerate(names) if n == feature]
+    if len(hits) != 1:
+        problem = "no feature is" if not hits else f"{len(hits)} features are"
+        raise InputError(f"{source}: {problem} named {shown(feature)} ({feature_key}); names found: "
+                         f"{_listing(names)}")
+    return frame.geometry.iloc[hits[0]]
+
+
+def _line_coordinates(geometry, source: str) -> np.ndarray:
+    """Vertices (n x 3) of a LineString Z or a one-part MultiLineString Z. [m]"""
+    if geometry is None or geometry.is_empty:
+        raise InputError(f"{source}: the feature has no geometry")
+    if geometry.geom_type == "MultiLineString":
+        if len(geometry.geoms) != 1:
+            raise InputError(f"{source}: a MultiLineString of {len(geometry.geoms)} parts; a drive needs one "
+                             "continuous line (merge the parts)")
+        geometry = geometry.geoms[0]
+    if geometry.geom_type != "LineString":
+        raise InputError(f"{source}: a {geometry.geom_type}; a drive alignment must be a LineString with Z")
+    if not geometry.has_z:
+        raise InputError(f"{source}: the line has no Z; a drive alignment needs a 3-D line (LineString Z)")
+    return shapely.get_coordinates(geometry, include_z=True)
+
+
+def _transformation_notes(source_crs, target_crs, source: str) -> list[str]:
+    """A warning when PROJ lacks the best transformation between the CRSs (e.g. a missing datum grid), with the
+    accuracy of the one it will use [m] as PROJ's database states it."""
+    with python_warnings.catch_warnings():
+        python_warnings.simplefilter("ignore")  # pyproj warns about the missing grid; we say it in our own words
+        group = pyproj.transformer.TransformerGroup(source_crs, target_crs, always_xy=True)
+    if group.best_available or not group.transformers:
+        return []
+    accuracy = group.transformers[0].accuracy
+    stated = f"about {accuracy:g} m" if accuracy is not None and accuracy >= 0 else "unknown"
+    return [f"{source}: the best transformation to the project CRS is not installed (a datum grid is missing); "
+            f"x, y were transformed with one of accuracy {stated}. Give the alignment in the project CRS, or "
+            "install the PROJ grids, if that matters here"]
+
+
+def read_alignment_gis(path, project_crs: str, z_means: str = "axis", layer: str | None = None,
+                       feature: str | None = None, layer_key: str = "alignment_layer",
+                       feature_key: str = "alignment_feature") -> Alignment:
+    """A drive alignment from a GIS line layer with Z, x and y reprojected to `project_crs`.
+
+    Parameters
+    ----------
+    path : path             .gpkg, .geojson, .json or .shp file.
+    project_crs : str       CRS of the project, e.g. "EPSG:27700"; x, y are returned in it. [m]
+    z_means : str           What Z is: "axis" level, "invert" level or "depth" of the axis below the surface. [m]
+    layer : str or None     Layer name; None = the file's only layer with geometry.
+    feature : str or None   Value of the `name` attribute of the line to use; None = the layer's only feature.
+    layer_key, feature_key : str  Project-file keys named in messages.
+    """
+    path = Path(path)
+    chosen = _choose_layer(path, layer, layer_key)
+    source = f"{path} layer {shown(chosen)}"
+    try:
+        frame = pyogrio.read_dataframe(path, layer=chosen)
+    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
+        raise InputError(f"{source}: cannot be read: {exc}") from None
+    if len(frame) == 0:
+        raise InputError(f"{source}: the layer has no features")
+    geometry = _choose_feature(frame, source, feature, feature_key)
+    if feature is not None:
+        source += f" feature {shown(feature)}"
+    xyz = _line_coordinates(geometry, source)
+    labels = [f"vertex {k}" for k in range(1, len(xyz) + 1)]
+    bad = ~np.isfinite(xyz).all(axis=1)
+    if bad.any():
+        raise InputError(f"{source} {labels[int(np.argmax(bad))]}: a coordinate is not a number")
+    notes = []
+    target = pyproj.CRS.from_user_input(project_crs)
+    if frame.crs is None:
+        notes.append(f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}")
+    elif not frame.crs.equals(target, ignore_axis_order=True):
+        notes.extend(_transformation_notes(frame.crs, target, source))
+        try:
+            transformer = pyproj.Transformer.from_crs(frame.crs, target, always_xy=True)
+            x, y = transformer.transform(xyz[:, 0], xyz[:, 1])
+        except pyproj.exceptions.ProjError as exc:
+            raise InputError(f"{source}: cannot be transformed from the layer's CRS ({frame.crs.to_string()}) to "
+                             f"the project CRS {project_crs}: {exc}") from None
+        xyz = np.column_stack([x, y, xyz[:, 2]])
+        bad = ~np.isfinite(xyz).all(axis=1)
+        if bad.any():
+            raise InputError(f"{source} {labels[int(np.argmax(bad))]}: cannot be transformed from the layer's "
+                             f"CRS ({frame.crs.to_string()}) to the project CRS {project_crs}")
+    check_alignment(xyz[:, :2], xyz[:, 2], z_means, source, labels)
+    return Alignment(xy=np.ascontiguousarray(xyz[:, :2]), v=xyz[:, 2].copy(), vertical=z_means, source=source,
+                     warnings=tuple(notes))

@@ -1,0 +1,84 @@
+"""Benchmark (not a test): a 2 km curved, inclined drive on a 1 m grid, GeoPackage included.
+
+    .venv/bin/python -m tests.benchmarks.long_drive [--out DIR]
+
+Prints the time of each step and the peak resident memory of the process, and compares the engine with a plain
+evaluation of the closed form (Attewell & Woodman) at the same number of grid nodes for a straight drive.
+"""
+from __future__ import annotations
+
+import argparse
+import resource
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+from settle.assessment import Assessment
+from settle.model import Drive, Ground, Layer, Output, Project, Surface
+from settle.troughs import excavated_area, straight_tunnel_movements
+
+
+def curved_project() -> Project:
+    """2 km: 500 m straight, a 1000 m left curve of radius 800 m, a 500 m right curve of radius 600 m; 5 m chords."""
+    pieces, heading, pos = [], 0.0, np.zeros(2)
+    for length, radius in ((500.0, np.inf), (1000.0, 800.0), (500.0, -600.0)):
+        s = np.arange(5.0, length + 1e-9, 5.0)
+        if np.isinf(radius):
+            pts = pos + np.outer(s, [np.cos(heading), np.sin(heading)])
+            new_heading = heading
+        else:
+            a = heading + s / radius
+            centre = pos + radius * np.array([-np.sin(heading), np.cos(heading)])
+            pts = centre + radius * np.column_stack([np.sin(a), -np.cos(a)])
+            new_heading = heading + length / radius
+        pieces.append(pts)
+        pos, heading = pts[-1], new_heading
+    xy = np.vstack([[0.0, 0.0], *pieces]) + [500000.0, 5700000.0]
+    chain = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(xy, axis=0).T))])
+    axis = 30.0 - 6.0 - 0.004 * chain + 1.5 * np.sin(chain / 300.0)  # falls 8 m, with undulations
+    ground = Ground(Surface(level_m=30.0), 28.0, (
+        Layer("sand", 30.0, 19.0, 0.35, "granular"), Layer("clay", 27.0, 19.5, 0.5, "cohesive")))
+    drive = Drive("benchmark", xy, axis, "axis", 2.4, 1.5)
+    return Project("benchmark", "EPSG:25832", ground, (drive,), Output(1.0, (1.0, 2.0, 5.0, 10.0, 20.0)))
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--out", help="folder for the GeoPackage (default: a temporary folder)")
+    args = parser.parse_args()
+    project = curved_project()
+    t0 = time.perf_counter()
+    a = Assessment(project)
+    result = a.result
+    t1 = time.perf_counter()
+    import gis_out
+
+    layers = gis_out.frames(result)
+    t2 = time.perf_counter()
+    out = Path(args.out or tempfile.mkdtemp())
+    path = gis_out.write_geopackage(out / "benchmark.gpkg", layers)
+    t3 = time.perf_counter()
+    peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    n = len(result.grid)
+    print(f"drive 2000 m, {result.drives[0].element_count} tunnel elements, grid 1 m")
+    print(f"grid nodes >= 0.1 mm: {n}; tiles: {len(result.tiles.settlement_mm)}")
+    print(f"engine (route + grid): {t1 - t0:.2f} s  ({a.timings})")
+    print(f"layers (contours, frames): {t2 - t1:.2f} s; GeoPackage write: {t3 - t2:.2f} s; total {t3 - t0:.2f} s")
+    print(f"volume check: lost {result.lost_volume_m3:.3f} m3, trough {result.settlement_volume_m3:.3f} m3")
+    print(f"peak resident memory: {peak_mb:.0f} MB; file {path.stat().st_size / 1e6:.1f} MB")
+
+    # Plain closed form at the same number of nodes: one straight 2 km element, every node of a band around it.
+    i = 0.4 * 6.0
+    half = int(np.ceil(n / 2001 / 2))
+    x, y = np.meshgrid(np.arange(0.0, 2001.0), np.arange(-half, half + 1.0))
+    t4 = time.perf_counter()
+    straight_tunnel_movements(x.ravel(), y.ravel(), 2000.0, 0.015 * excavated_area(2.4), i, 6.0)
+    t5 = time.perf_counter()
+    print(f"plain closed form at {x.size} nodes (one straight element, no superposition): {t5 - t4:.2f} s; "
+          f"engine grid step / plain = {a.timings['grid'] / (t5 - t4):.1f}")
+
+
+if __name__ == "__main__":
+    main()
