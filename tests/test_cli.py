@@ -1,0 +1,143 @@
+"""The command line end to end on the demo site: outputs, exit status, messages, safe writes."""
+import json
+import re
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import fiona
+import pytest
+
+from settle.cli import _Progress
+
+from .gpkg_conformance import assert_conformant
+
+DEMO = Path(__file__).resolve().parent.parent / "demo_site"
+
+
+def settle(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "settle", *map(str, args)], capture_output=True, text=True, cwd=cwd)
+
+
+@pytest.fixture(scope="module")
+def demo_run(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo_out")
+    done = settle("run", DEMO / "ostrey.toml", "--out", out)
+    return done, out
+
+
+def test_demo_runs_and_writes_the_contract_layers(demo_run):
+    done, out = demo_run
+    assert done.returncode == 0, done.stderr
+    gpkg = out / "ostrey.gpkg"
+    assert sorted(fiona.listlayers(gpkg)) == sorted(["route", "grid", "settlement_bands", "settlement_lines", "points"])
+    fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
+    assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
+    assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
+    assert {"lower_mm", "upper_mm"} <= fields["settlement_bands"]
+    assert fields["settlement_lines"] >= {"level_mm"}
+    with fiona.open(gpkg, layer="route") as route:
+        assert route.schema["geometry"] == "3D LineString"
+        assert route.crs.to_epsg() == 25832
+        assert len(route) == 2
+    assert_conformant(gpkg)  # OGC GeoPackage requirements, see tests/gpkg_conformance.py
+
+
+def test_demo_summary(demo_run):
+    done, out = demo_run
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["project"] == "Ostrey water main and cable tunnel"
+    assert [d["name"] for d in summary["drives"]] == ["Kiln Yard to Osier Meadow water main",
+                                                     "Osier Meadow to Rope Street cable tunnel"]
+    assert summary["drives"][1]["face_chainage_m"] == 95.0
+    # The surface trough holds the lost volume (identity; the small remainder is the precision cut-off).
+    assert abs(summary["volume_check"]["difference_pct"]) < 0.1
+    assert summary["max_settlement"]["settlement_mm"] > 5
+    assert any("2 x the outer diameter" in w for w in summary["warnings"])  # the brook crossing
+    assert "qualified engineer" in summary["caution"]
+    assert "warning: " in done.stderr and "cover is less than 2 x" in done.stderr
+
+
+def test_same_project_gives_the_same_outputs(demo_run, tmp_path):
+    _, out = demo_run
+    again = settle("run", DEMO / "ostrey.toml", "--out", tmp_path)
+    assert again.returncode == 0
+    assert (tmp_path / "summary.json").read_text() == (out / "summary.json").read_text()
+
+
+@pytest.mark.parametrize("args", [["--help"], ["run", "--help"]])
+def test_help_states_the_caution(args):
+    done = settle(*args)
+    assert done.returncode == 0
+    assert "qualified engineer" in done.stdout and "local codes" in done.stdout
+
+
+def _broken_copy(tmp_path, old, new):
+    for f in DEMO.iterdir():
+        if f.is_file():
+            shutil.copy(f, tmp_path / f.name)
+    toml = tmp_path / "ostrey.toml"
+    text = toml.read_text()
+    assert old in text
+    toml.write_text(text.replace(old, new))
+    return toml
+
+
+@pytest.mark.parametrize(
+    "old, new, message",
+    [
+        ("outer_diameter_m = 2.0", 'outer_diameter_m = "2,0"', r'outer_diameter_m .*got "2,0"'),
+        ('crs = "EPSG:25832"', 'crs = "EPSG:4326"', r"crs .*not projected"),
+        ("volume_loss_pct = 1.0\n", "volume_loss = 1.0\n", r'unknown key "volume_loss"; did you mean "volume_loss_pct"'),
+        ("inner_diameter_m = 1.6\n", "inner_diameter_m = 1.6\nface_chainage_m = 900.0\n",
+         r"face_chainage_m = 900 is outside the drive"),
+    ],
+)
+def test_bad_input_exits_2_with_one_line_and_no_traceback(tmp_path, old, new, message):
+    toml = _broken_copy(tmp_path, old, new)
+    done = settle("run", toml, "--out", tmp_path / "out")
+    assert done.returncode == 2
+    assert "Traceback" not in done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("settle: error: ")
+    assert re.search(message, lines[0]), lines[0]
+    assert not (tmp_path / "out" / "ostrey.gpkg").exists()
+
+
+def test_crown_above_ground_is_refused(tmp_path):
+    # Lift the water main's invert by 6 m: its crown comes out of the ground.
+    toml = _broken_copy(tmp_path, 'alignment = "water_main_alignment.csv"', 'alignment = "lifted.csv"')
+    rows = (DEMO / "water_main_alignment.csv").read_text().splitlines()
+    lifted = [rows[0]] + [",".join([*r.split(",")[:2], f"{float(r.split(',')[2]) + 6:.3f}"]) for r in rows[1:]]
+    (tmp_path / "lifted.csv").write_text("\n".join(lifted) + "\n")
+    done = settle("run", toml, "--out", tmp_path)
+    assert done.returncode == 2
+    assert "crown is above the ground surface" in done.stderr and "Traceback" not in done.stderr
+
+
+def test_failed_run_leaves_the_earlier_result_untouched(demo_run, tmp_path):
+    _, good = demo_run
+    out = tmp_path / "out"
+    shutil.copytree(good, out)
+    before = {p.name: p.read_bytes() for p in out.iterdir()}
+    toml = _broken_copy(tmp_path, "grid_spacing_m = 1.0", "grid_spacing_m = -1.0")
+    done = settle("run", toml, "--out", out)
+    assert done.returncode == 2
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == before
+
+
+def test_progress_only_on_a_terminal(capsys):
+    quiet = _Progress(enabled=False)
+    quiet("grid", 0.5)
+    quiet.done()
+    assert capsys.readouterr().err == ""
+    shown = _Progress(enabled=True)
+    shown("grid", 0.5)
+    shown.done()
+    assert "grid:  50.0 %" in capsys.readouterr().err
+
+
+def test_piped_run_prints_no_progress(demo_run):
+    done, _ = demo_run
+    assert "\r" not in done.stderr and "%" not in done.stderr
