@@ -111,13 +111,14 @@ def _point_sink_reference(xy_axis, z_axis, x, y, n=20001):
 
 
 def test_curved_drive_matches_numerical_point_sinks():
-    # A curve of radius 60 m (tight for a pipejack) drawn with 2 m chords: the superposed exact lengths match the
-    # point-sink integral along the same axis (methods.md section 2, elemental sinks) to a small fraction of Smax.
+    # A curve of radius 60 m (tight for a pipejack) drawn with 2 m chords: the superposed exact lengths equal the
+    # point-sink integral along the same polyline (methods.md section 2, elemental sinks); what remains is the
+    # quadrature error of the 20 001-sink sum (about 3e-7 mm).
     xy = b.arc(60.0, 90.0, 48)
     probe = np.concatenate([b.arc(60.0 - dr, 90.0, 9) for dr in (-6, -3, 0, 3, 6)])
     r = run(b.drive(xy, 4.0), points=b.points(probe))
     ref = _point_sink_reference(xy, 6.0, probe[:, 0], probe[:, 1]) * 1e3
-    assert np.abs(r.points.settlement_mm - ref).max() < 0.01 * 9.3999
+    assert np.abs(r.points.settlement_mm - ref).max() < 1e-5
 
 
 @settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -131,7 +132,7 @@ def test_volume_conservation_on_curved_inclined_routes(radius, angle, n, depth, 
     xy = b.arc(radius, angle, n)
     length = radius * np.radians(angle)
     s = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(xy, axis=0).T))])
-    z = 10.0 - depth + grade * s
+    z = np.minimum(10.0 - depth + grade * s, 10.0 - 3.0)  # keep at least 3 m of depth
     d = b.drive(xy, z, vl_pct=vl, face_chainage_m=None if face == 1.0 else face * length * 0.999)
     r = run(d, spacing=0.5)
     assert r.lost_volume_m3 > 0
