@@ -68,7 +68,7 @@ class Assessment:
         points, ids = None, ()
         if self.project.points is not None:
             pts = self.project.points
-            points = movements_at_points(self.elements, self.ground, pts.x_m, pts.y_m, pts.depth_m)
+            points = self.movements_at(pts.x_m, pts.y_m, pts.depth_m)
             ids = pts.ids
             deep = [pid for pid, s in zip(ids, points.settlement_mm) if np.isnan(s)]
             if deep:
@@ -90,6 +90,14 @@ class Assessment:
             timings_s=self.timings,
         )
         return self
+
+    def movements_at(self, x, y, depth_m):
+        """Movements of every drive, at the run's face positions, at places and their depths below ground."""
+        if self.elements is None:
+            self.route()
+        return movements_at_points(
+            self.elements, self.ground, x, y, depth_m, precision_m=self.project.output.precision_mm / 1e3
+        )
 
     @property
     def result(self) -> Result:

@@ -74,38 +74,70 @@ def _distance_to_element(elements: Elements, e: np.ndarray, x, y) -> np.ndarray:
     return np.hypot(beyond, v)
 
 
-def movements_at_points(elements: Elements, ground: GroundModel, x, y, depth) -> Movements:
+def _pairs_within(elements: Elements, radius: np.ndarray, x: np.ndarray, y: np.ndarray, batch: int):
+    """Yield batches of (place, element) index pairs with the place within `radius` of the element's axis.
+
+    Places are binned into square cells; the cells near each element's rectangle are found row by row with the same
+    rasterisation as the grid, and since a row's cells are consecutive keys, their places are one slice of the
+    places sorted by cell. Fully vectorised; each batch holds about `batch` candidate pairs.
+    """
+    if not len(x) or not len(elements):
+        return
+    cell = max(float(np.median(radius)), 1.0)
+    x0, y0 = x.min(), y.min()
+    col = np.floor((x - x0) / cell).astype(np.int64)
+    row = np.floor((y - y0) / cell).astype(np.int64)
+    across = int(col.max()) + 1
+    key = row * across + col
+    order = np.argsort(key, kind="stable")
+    sorted_key = key[order]
+    # Rectangles grown by half a cell diagonal, rasterised on the cell centres: every cell they touch.
+    corners = influence_corners(elements, None, radius + cell * np.sqrt(0.5))
+    owner, rows, x_min, x_max = _rows_in_rectangles(corners - [x0 + cell / 2, y0 + cell / 2], 0.0, cell)
+    c0 = np.maximum(np.ceil(x_min / cell), 0).astype(np.int64)
+    c1 = np.minimum(np.floor(x_max / cell), across - 1).astype(np.int64)
+    ok = (c1 >= c0) & (rows >= 0) & (rows <= row.max())
+    owner, rows, c0, c1 = owner[ok], rows[ok], c0[ok], c1[ok]
+    lo = np.searchsorted(sorted_key, rows * across + c0, side="left")
+    hi = np.searchsorted(sorted_key, rows * across + c1, side="right")
+    count = hi - lo
+    group = np.floor(np.cumsum(count) / batch).astype(np.int64)
+    for g in np.unique(group):
+        sel = group == g
+        n_sel = count[sel]
+        run = np.repeat(np.arange(n_sel.size), n_sel)
+        at = np.repeat(lo[sel] - (np.cumsum(n_sel) - n_sel), n_sel) + np.arange(run.size)
+        p = order[at]
+        e = owner[sel][run]
+        keep = _distance_to_element(elements, e, x[p], y[p]) < radius[e]
+        yield p[keep], e[keep]
+
+
+def movements_at_points(elements: Elements, ground: GroundModel, x, y, depth, precision_m: float = 1e-6) -> Movements:
     """Movements at places, each at its own depth below the ground surface (0 = at the surface).
 
-    Every element is evaluated at every place (no cut-off), in batches. Below the surface the trough narrows with
-    depth (`troughs.subsurface_width_ratio`) and keeps its volume, so Smax(z) = Vs / (sqrt(2 pi) i(z)). Places at or
-    below the crown of an element that reaches them get NaN: the subsurface relations do not hold there.
+    Each element is evaluated at the places within its reach radius (beyond, its surface settlement is below
+    `precision_m`), so the cost grows with the places that move, not with places x elements. Below the surface the trough
+    narrows with depth (`troughs.subsurface_width_ratio`) and keeps its volume, so Smax(z) = Vs / (sqrt(2 pi) i(z)).
+    Places at or below the crown of an element that reaches them get NaN: the subsurface relations do not hold there.
     """
     x, y, depth = (np.asarray(a, dtype=float) for a in (x, y, depth))
-    n, m = len(x), len(elements)
+    n = len(x)
     sums = {f: np.zeros(n) for f in FIELDS}
     below_crown = np.zeros(n, dtype=bool)
-    if m:
-        reach = elements.reach_radius_m(1e-9)  # about 6.4 i: beyond, nothing within a nanometre
-        per = max(1, PAIRS_PER_BATCH // m)
-        for lo in range(0, n, per):
-            hi = min(n, lo + per)
-            p = np.arange(lo, hi).repeat(m)
-            e = np.tile(np.arange(m), hi - lo)
-            z0 = elements.axis_depth_m[e]
-            d = depth[p]
-            crown = z0 - elements.outer_diameter_m[e] / 2.0
-            near = _distance_to_element(elements, e, x[p], y[p]) < reach[e]
-            deep = d >= crown
-            below_crown[p[deep & near]] = True
-            d_ok = np.where(deep, 0.0, d)
-            upper = elements.surface_level_m[e] - d_ok
-            share = ground.cohesive_fraction(upper, elements.axis_level_m[e])
-            i = elements.trough_width_m[e] * subsurface_width_ratio(d_ok, z0, share)
-            mov = _element_movements(elements, e, x[p], y[p], i, z0 - d_ok)
-            for f in FIELDS:
-                weights = np.where(deep, 0.0, mov[f])  # far below an element's crown: it does not reach there
-                sums[f][lo:hi] += np.bincount(p - lo, weights=weights, minlength=hi - lo)
+    reach = elements.reach_radius_m(precision_m)
+    for p, e in _pairs_within(elements, reach, x, y, 2 * PAIRS_PER_BATCH):
+        z0 = elements.axis_depth_m[e]
+        d = depth[p]
+        deep = d >= z0 - elements.outer_diameter_m[e] / 2.0
+        below_crown[p[deep]] = True
+        d_ok = np.where(deep, 0.0, d)
+        upper = elements.surface_level_m[e] - d_ok
+        share = ground.cohesive_fraction(upper, elements.axis_level_m[e])
+        i = elements.trough_width_m[e] * subsurface_width_ratio(d_ok, z0, share)
+        mov = _element_movements(elements, e, x[p], y[p], i, z0 - d_ok)
+        for f in FIELDS:
+            sums[f] += np.bincount(p, weights=mov[f], minlength=n)
     for f in FIELDS:
         sums[f][below_crown] = np.nan
     return _to_movements(x, y, depth, sums)
@@ -138,9 +170,12 @@ def _rows_in_rectangles(corners: np.ndarray, origin_y: float, h: float):
     return owner, row, x_min, x_max
 
 
-def influence_corners(elements: Elements, precision_m: float) -> np.ndarray:
-    """Corners (n, 4, 2) of the rectangle around each element outside which it settles less than the precision."""
-    c = elements.reach_radius_m(precision_m)[:, None]
+def influence_corners(elements: Elements, precision_m: float | None, radius_m: np.ndarray | None = None) -> np.ndarray:
+    """Corners (n, 4, 2) of the rectangle around each element outside which it settles less than the precision.
+
+    `radius_m`, when given, is the distance from the axis instead of the element's reach radius.
+    """
+    c = (elements.reach_radius_m(precision_m) if radius_m is None else np.asarray(radius_m))[:, None]
     d = elements.direction
     nrm = np.column_stack([-d[:, 1], d[:, 0]])
     s = elements.start_xy
