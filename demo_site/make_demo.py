@@ -41,7 +41,7 @@ def drive_one():
     x[~straight] = cx + radius * np.sin(heading0 + a)
     y[~straight] = cy - radius * np.cos(heading0 + a)
     # Axis: 5.7 m deep at Kiln Yard, a sag under the brook, 5.2 m deep at Osier Meadow.
-    axis = np.interp(s, [0.0, 180.0, 250.0, 330.0, 400.0, 480.0], [25.5, 24.7, 24.2, 24.2, 24.6, 25.0])
+    axis = np.interp(s, [0.0, 180.0, 250.0, 330.0, 400.0, 480.0], [25.5, 24.5, 23.4, 23.4, 24.2, 25.0])
     invert = axis - 1.6 / 2.0  # inner diameter 1.6 m
     return x, y, invert
 
@@ -73,7 +73,7 @@ def main():
     t = np.linspace(0.0, 150.0, 7)
     heading = np.radians(100.0)
     cx, cy = sx + t * np.cos(heading), sy + t * np.sin(heading)
-    depth = np.interp(t, [0.0, 150.0], [5.0, 4.4])
+    depth = np.interp(t, [0.0, 150.0], [6.0, 5.4])
     feature = {
         "type": "Feature",
         "properties": {"name": "Rope Street cable tunnel"},

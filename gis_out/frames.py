@@ -11,6 +11,10 @@ Layers and fields (the names are part of the output format; GIS projects refer t
                       reporting points.
 - `settlement_bands`  MultiPolygon per band: band, lower_mm, upper_mm (see `gis_out.contours.settlement_bands`).
 - `settlement_lines`  MultiLineString per level: level_mm.
+- `face_stations`     Point per face-check station (settle.face_stations): drive, chainage_m, cover_m,
+                      water_pressure_kpa, support_min_kpa, blowout_kpa, support_max_kpa, window_kpa, status, and more.
+                      With it the `route` layer gains face_min_window_kpa, face_min_window_chainage_m,
+                      face_closed_stations, face_narrow_stations, face_low_cover_stations.
 
 Values are float64 as computed; nothing is rounded. Each frame declares its layer geometry type in
 `frame.attrs["geometry_type"]`, which `write_geopackage` uses so that a layer with no rows keeps its type.
@@ -33,6 +37,7 @@ GEOMETRY_TYPES = {
     "points": "Point",
     "settlement_bands": "MultiPolygon",
     "settlement_lines": "MultiLineString",
+    "face_stations": "Point",
 }
 
 ROUTE_FIELDS = ("drive", "start_chainage_m", "end_chainage_m", "length_m", "outer_diameter_m", "face_chainage_m",
@@ -127,6 +132,26 @@ def lines_frame(rows: list[dict], crs: str) -> gpd.GeoDataFrame:
     return _frame(columns, [r["geometry"] for r in rows], crs, "settlement_lines")
 
 
+def face_frame(all_stations, crs: str) -> gpd.GeoDataFrame:
+    """The face stations of every drive: points on the axis in plan, fields of `face_station_fields`."""
+    from settle.face_stations import face_station_fields
+
+    parts = [pd.DataFrame(face_station_fields(st)) for st in all_stations]
+    columns = pd.concat(parts, ignore_index=True)
+    xy = np.concatenate([np.column_stack([st.x_m, st.y_m]) for st in all_stations])
+    return _frame({k: columns[k].to_numpy() for k in columns}, shapely.points(xy), crs, "face_stations")
+
+
+def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFrame:
+    """The route layer with each drive's face-window attributes (`face_summary`) added."""
+    from settle.face_stations import face_summary
+
+    summaries = pd.DataFrame([face_summary(st) for st in all_stations])
+    for name in summaries:
+        route[name] = summaries[name].to_numpy()
+    return route
+
+
 def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     """All GIS layers of a run, keyed by layer name, in the project CRS.
 
@@ -137,7 +162,8 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     Returns
     -------
     dict  `route`, `grid`, `points` (only when the run has reporting points), `settlement_bands`,
-          `settlement_lines`; see the module docstring for the fields.
+          `settlement_lines`, `face_stations` (when the face check ran; the route then carries its summary);
+          see the module docstring for the fields.
     """
     project = result.project
     crs = project.crs
@@ -148,4 +174,7 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     levels = project.output.contour_levels_mm
     layers["settlement_bands"] = bands_frame(settlement_bands(result.tiles, levels, levels_where), crs)
     layers["settlement_lines"] = lines_frame(settlement_lines(result.tiles, levels, levels_where), crs)
+    if result.face:
+        layers["route"] = _with_face_summary(layers["route"], result.face)
+        layers["face_stations"] = face_frame(result.face, crs)
     return layers

@@ -1,6 +1,6 @@
 """The orchestrator: the engineer's procedure, step by step.
 
-    result = Assessment(project).greenfield().result
+    result = Assessment(project).greenfield().face().result
 
 Each step can be run and tested alone; the numbers come from the model functions in `troughs`, superposed by
 `field`, on the geometry of `route`.
@@ -32,6 +32,7 @@ class Assessment:
         self.drives = []
         self.elements: Elements | None = None
         self._result: Result | None = None
+        self._face: list = []
 
     def _timed(self, name, started):
         self.timings[name] = time.perf_counter() - started
@@ -88,7 +89,28 @@ class Assessment:
             settlement_volume_m3=volume,
             warnings=self.warnings,
             timings_s=self.timings,
+            face=self._face,
         )
+        return self
+
+    def face(self) -> "Assessment":
+        """Face support pressure window along every drive (runs when the layers carry their strengths)."""
+        if self.elements is None:
+            self.route()
+        p = self.project
+        if not p.strengths:
+            return self
+        from .face_stations import face_stations
+
+        t = time.perf_counter()
+        where = p.path.name if p.path else "project"
+        for drive, geometry in zip(p.drives, self.drives):
+            stations = face_stations(geometry, self.ground, p.strengths, p.rivers, p.face, drive.face_support, where)
+            self._face.append(stations)
+            self.warnings.extend(stations.warnings)
+        self._timed("face", t)
+        if self._result is not None:
+            self._result.face = self._face
         return self
 
     def movements_at(self, x, y, depth_m):
@@ -112,4 +134,4 @@ def run(project: Project | str | Path, progress=None) -> Result:
         from .project import load_project
 
         project = load_project(project)
-    return Assessment(project, progress).greenfield().result
+    return Assessment(project, progress).greenfield().face().result

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 import sys
 from pathlib import Path
 
@@ -63,7 +64,7 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _run(args) -> int:
-    from .assessment import Assessment
+    from .assessment import run
     from .project import load_project
     from .summary import summarise
 
@@ -73,7 +74,7 @@ def _run(args) -> int:
         raise InputError(f"--out {out}: exists and is not a folder")
     progress = _Progress(sys.stderr.isatty() and not args.quiet)
     try:
-        result = Assessment(project, progress).greenfield().result
+        result = run(project, progress)
     finally:
         progress.done()
 
@@ -84,7 +85,10 @@ def _run(args) -> int:
     gpkg = out / f"{stem}.gpkg"
     summary_path = out / "summary.json"
     gis_out.write_geopackage(gpkg, gis_out.frames(result))
-    summary = summarise(result, outputs={"geopackage": gpkg.name, "summary": summary_path.name})
+    outputs = {"geopackage": gpkg.name, "summary": summary_path.name}
+    if result.face:
+        outputs.update(_write_face(result, out))
+    summary = summarise(result, outputs=outputs)
     gis_out.write_text_atomic(summary_path, json.dumps(summary, indent=2) + "\n")
 
     if not args.quiet:
@@ -98,6 +102,27 @@ def _run(args) -> int:
             )
         print(f"wrote {gpkg} and {summary_path}")
     return 0
+
+
+def _slug(name: str) -> str:
+    return re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "drive"
+
+
+def _write_face(result, out: Path) -> dict:
+    """The operator's pressure table (CSV) and a longitudinal section (PNG) per drive."""
+    import gis_out
+    from gis_out.face_section import face_section_png
+
+    from .face_stations import operator_csv_text
+
+    table = out / "face_pressures.csv"
+    gis_out.write_text_atomic(table, operator_csv_text(result.face))
+    figures = []
+    for stations, drive in zip(result.face, result.drives):
+        path = out / f"face_section_{_slug(drive.name)}.png"
+        face_section_png(stations, drive, path, layers=result.project.ground.layers)
+        figures.append(path.name)
+    return {"face_pressures": table.name, "face_sections": figures}
 
 
 def main(argv=None) -> int:

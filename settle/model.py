@@ -78,6 +78,7 @@ class Drive:
     start_chainage_m: float = 0.0
     reaches: tuple[Reach, ...] = ()
     source: str = ""  # alignment file (and layer), for messages
+    face_support: tuple = ()  # settle.face_stations.SupportReach items: support mode per reach
 
 
 @dataclass(frozen=True)
@@ -108,4 +109,8 @@ class Project:
     output: Output
     points: Points | None = None
     path: Path | None = None  # the project file, when read from one
+    # Face support check (settle.face_stations): runs when strengths are given, one LayerStrength per layer.
+    strengths: tuple = ()
+    rivers: tuple = ()  # settle.face_stations.River items
+    face: object | None = None  # settle.face_stations.FaceOptions; None = the documented defaults
     warnings: tuple[str, ...] = field(default_factory=tuple)

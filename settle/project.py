@@ -81,6 +81,7 @@ Example
 """
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import math
 import re
@@ -90,18 +91,25 @@ from pathlib import Path
 import pyproj
 
 from .errors import InputError
+from .face_stations import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach, check_face_options,
+                            check_layer_strengths, check_rivers, check_support_reaches)
 from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output, Project, Reach, Surface
 from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,
                      read_surface_points, shown)
 
-TOP_KEYS = ("project", "ground", "drives", "points", "output")
+TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
+STRENGTH_KEYS = ("friction_angle_deg", "cohesion_kpa", "undrained_strength_kpa", "shear_modulus_mpa")
 DRIVE_KEYS = ("name", "alignment", "outer_diameter_m", "volume_loss_pct", "face_chainage_m", "inner_diameter_m",
-              "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z", "reaches")
+              "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z", "reaches",
+              "face_support")
 GIS_ONLY_KEYS = ("alignment_layer", "alignment_feature", "alignment_z")
 REACH_KEYS = ("from_chainage_m", "to_chainage_m", "volume_loss_pct", "trough_width_k")
+SUPPORT_KEYS = ("from_chainage_m", "to_chainage_m", "mode")
+RIVER_KEYS = ("name", "drive", "from_chainage_m", "to_chainage_m", "bed_level_m", "water_level_m")
+FACE_KEYS = tuple(f.name for f in dataclasses.fields(FaceOptions))
 POINTS_KEYS = ("file",)
 OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm")
 
@@ -110,7 +118,7 @@ VOLUME_LOSS_RANGE = dict(gt=0.0, le=20.0)  # [%]
 
 # key suffix -> (words for "a number of ...", symbol after a bound)
 _UNITS = (("_kn_m3", "kN/m3", " kN/m3"), ("_mm", "millimetres", " mm"), ("_pct", "per cent", " %"),
-          ("_m", "metres", " m"))
+          ("_deg", "degrees", " deg"), ("_kpa", "kPa", " kPa"), ("_mpa", "MPa", " MPa"), ("_m", "metres", " m"))
 
 
 def load_project(path) -> Project:
@@ -149,8 +157,9 @@ def load_project(path) -> Project:
         _check_keys(table, POINTS_KEYS, where)
         points = read_points(_path(table, "file", where, path.parent))
     output = _output(_table(doc, "output", name), f"{name} [output]")
+    strengths, rivers, face = _face_inputs(doc, name, ground, drives)
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
-                   warnings=tuple(warnings))
+                   warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face)
 
 
 # ------------------------------------------------------------------------------------------------ generic helpers
@@ -326,7 +335,7 @@ def _ground(table: dict, file: str, folder: Path) -> Ground:
 def _layer(table: dict, where: str, above: Layer | None) -> Layer:
     """One [[ground.layers]] item; its top must lie below the top of the layer `above`."""
     where = _named(table, where)
-    _check_keys(table, LAYER_KEYS, where)
+    _check_keys(table, LAYER_KEYS + STRENGTH_KEYS, where)
     name = _text(table, "name", where)
     top = _number(table, "top_level_m", where)
     if above is not None and not top < above.top_level_m:
@@ -363,6 +372,7 @@ def _drive(table: dict, where: str, folder: Path, crs: str, warnings: list[str])
     volume_loss = _number(table, "volume_loss_pct", where, **VOLUME_LOSS_RANGE)
     k = _number(table, "trough_width_k", where, required=False, **K_RANGE)
     reaches = _reaches(table, where)
+    support = _face_support(table, where, name)
     alignment = _alignment(table, where, folder, crs)
     warnings.extend(alignment.warnings)
     if alignment.vertical == "invert" and inner is None:
@@ -370,7 +380,8 @@ def _drive(table: dict, where: str, folder: Path, crs: str, warnings: list[str])
                          "needed to find the axis")
     return Drive(name=name, alignment_xy=alignment.xy, alignment_v=alignment.v, vertical=alignment.vertical,
                  outer_diameter_m=outer, volume_loss_pct=volume_loss, inner_diameter_m=inner, trough_width_k=k,
-                 face_chainage_m=face, start_chainage_m=start, reaches=reaches, source=alignment.source)
+                 face_chainage_m=face, start_chainage_m=start, reaches=reaches, source=alignment.source,
+                 face_support=support)
 
 
 def _alignment(table: dict, where: str, folder: Path, crs: str) -> Alignment:
@@ -443,3 +454,79 @@ def _levels(table: dict, key: str, where: str) -> tuple[float, ...]:
             raise InputError(f"{where}: {key} must increase strictly; item {j + 1} ({levels[j]:g}) follows "
                              f"{levels[j - 1]:g}")
     return levels
+
+
+# ----------------------------------------------------------------------------------------------- face support
+def _face_support(drive: dict, where: str, name: str) -> tuple[SupportReach, ...]:
+    """The drive's [[drives.face_support]]: support mode ("slurry" | "air_cushion") per reach."""
+    if "face_support" not in drive:
+        return ()
+    reaches = []
+    for i, table in enumerate(_tables(drive, "face_support", "drives.face_support", where), start=1):
+        at = f"{where} [[drives.face_support]] #{i}"
+        _check_keys(table, SUPPORT_KEYS, at)
+        reaches.append(SupportReach(from_chainage_m=_number(table, "from_chainage_m", at),
+                                    to_chainage_m=_number(table, "to_chainage_m", at),
+                                    mode=_text(table, "mode", at, choices=SUPPORT_MODES)))
+    check_support_reaches(reaches, name, where.split(" [[")[0])
+    return tuple(reaches)
+
+
+def _face_inputs(doc: dict, file: str, ground: Ground, drives) -> tuple[tuple, tuple, FaceOptions | None]:
+    """Layer strengths, [[rivers]] and [face]. The face check runs when the layers carry strengths; rivers or a
+    [face] table without them is an error, as is a layer without them when another has them."""
+    tables = [item for item in doc["ground"]["layers"]]
+    given = [any(k in t for k in STRENGTH_KEYS) for t in tables]
+    strengths: tuple = ()
+    if any(given):
+        items = []
+        for i, (table, layer) in enumerate(zip(tables, ground.layers), start=1):
+            where = f'{file} [[ground.layers]] #{i} "{layer.name}"'
+            if not given[i - 1]:
+                raise InputError(f"{where}: friction_angle_deg and cohesion_kpa are missing; the face support check "
+                                 "needs the strength of every layer once one layer has it")
+            items.append(LayerStrength(
+                friction_angle_deg=_number(table, "friction_angle_deg", where, ge=0.0, le=50.0),
+                cohesion_kpa=_number(table, "cohesion_kpa", where, ge=0.0),
+                undrained_strength_kpa=_number(table, "undrained_strength_kpa", where, required=False, gt=0.0),
+                shear_modulus_mpa=_number(table, "shear_modulus_mpa", where, required=False, gt=0.0)))
+        strengths = tuple(items)
+        check_layer_strengths(strengths, ground.layers, file)
+
+    rivers = []
+    if "rivers" in doc:
+        for i, table in enumerate(_tables(doc, "rivers", "rivers", file), start=1):
+            at = _named(table, f"{file} [[rivers]] #{i}")
+            _check_keys(table, RIVER_KEYS, at)
+            rivers.append(River(drive=_text(table, "drive", at), name=_text(table, "name", at, required=False,
+                                                                                default=""),
+                                from_chainage_m=_number(table, "from_chainage_m", at),
+                                to_chainage_m=_number(table, "to_chainage_m", at),
+                                bed_level_m=_number(table, "bed_level_m", at),
+                                water_level_m=_number(table, "water_level_m", at)))
+        check_rivers(rivers, [d.name for d in drives], file)
+
+    face = None
+    if "face" in doc:
+        where = f"{file} [face]"
+        table = _table(doc, "face", file)
+        _check_keys(table, FACE_KEYS, where)
+        values = {}
+        for f in dataclasses.fields(FaceOptions):
+            if f.name not in table:
+                continue
+            if f.name == "support_mode":
+                values[f.name] = _text(table, f.name, where, choices=SUPPORT_MODES)
+            elif f.name == "blowout_side_shear":
+                if not isinstance(table[f.name], bool):
+                    raise InputError(f"{where}: blowout_side_shear must be true or false; got {shown(table[f.name])}")
+                values[f.name] = table[f.name]
+            else:
+                values[f.name] = _number(table, f.name, where)
+        face = FaceOptions(**values)
+        check_face_options(face, file)
+    if (rivers or face is not None) and not strengths:
+        raise InputError(f"{file}: [[rivers]] and [face] are for the face support check, which needs "
+                         "friction_angle_deg and cohesion_kpa (and undrained_strength_kpa for cohesive layers) on "
+                         "every [[ground.layers]] item")
+    return strengths, tuple(rivers), face

@@ -127,6 +127,7 @@ class Result:
     settlement_volume_m3: float  # volume of the surface trough, summed over the grid
     warnings: list[str]
     timings_s: dict[str, float] = field(default_factory=dict)
+    face: list = field(default_factory=list)  # settle.face_stations.FaceStations per drive, when the check ran
 
     @property
     def lost_volume_m3(self) -> float:

@@ -88,6 +88,14 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
         }
     if summary["max_compressive_strain"]:  # reported as a signed (negative) strain
         summary["max_compressive_strain"]["strain_ue"] *= -1
+    if result.face:
+        from .face_stations import face_summary
+
+        summary["face_support"] = [
+            {"drive": st.drive, **{k: (_r(v, 2) if isinstance(v, float) else v) for k, v in face_summary(st).items()},
+             "stations": len(st), "open_stations": int((st.status == "open").sum())}
+            for st in result.face
+        ]
     if outputs:
         summary["outputs"] = outputs
     return summary

@@ -31,7 +31,8 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
     done, out = demo_run
     assert done.returncode == 0, done.stderr
     gpkg = out / "ostrey.gpkg"
-    assert sorted(fiona.listlayers(gpkg)) == sorted(["route", "grid", "settlement_bands", "settlement_lines", "points"])
+    assert sorted(fiona.listlayers(gpkg)) == sorted(["route", "grid", "settlement_bands", "settlement_lines", "points",
+                                                     "face_stations"])
     fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
     assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
     assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
@@ -42,6 +43,26 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
         assert route.crs.to_epsg() == 25832
         assert len(route) == 2
     assert_conformant(gpkg)  # OGC GeoPackage requirements, see tests/gpkg_conformance.py
+
+
+def test_demo_face_support_outputs(demo_run):
+    _, out = demo_run
+    gpkg = out / "ostrey.gpkg"
+    with fiona.open(gpkg, layer="face_stations") as layer:
+        assert {"drive", "chainage_m", "cover_m", "water_pressure_kpa", "support_min_kpa", "blowout_kpa",
+                "support_max_kpa", "window_kpa", "status"} <= set(layer.schema["properties"])
+    with fiona.open(gpkg, layer="route") as layer:
+        assert "face_min_window_kpa" in layer.schema["properties"]
+    table = (out / "face_pressures.csv").read_text().splitlines()
+    assert table[0].startswith("# Planning bounds only") and "responsible engineer" in table[0]
+    assert table[2].startswith("drive,chainage_m,status")
+    summary = json.loads((out / "summary.json").read_text())
+    main = summary["face_support"][0]
+    # The brook crossing: the window is narrow where the cover is lowest (the demo's purpose, issue 4).
+    assert 289.0 <= main["face_min_window_chainage_m"] <= 305.0
+    assert 0.0 <= main["face_min_window_kpa"] < 10.0
+    for name in summary["outputs"]["face_sections"]:
+        assert (out / name).stat().st_size > 20_000
 
 
 def test_demo_summary(demo_run):

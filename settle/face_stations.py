@@ -1,0 +1,683 @@
+"""Face support window along a drive: stations, their stresses, and the pressures to hold at the crown.
+
+The procedure, for one drive (`face_stations`):
+
+1. Stations every `face_station_spacing_m` from the launch shaft, at the reception shaft, at every vertex of the
+   alignment (where the cover changes its trend), where the crown, axis or invert crosses the top of a layer or the
+   groundwater level, and at both ends of every river reach and support reach. A reach end is a step: a second
+   station `STEP_M` (10 mm) on its other side shows the values there (river reach: both ends inside, the extra
+   stations outside; support reach: from its start up to, not including, its end).
+2. At each station the ground surface is `GroundModel.surface_level(x, y)`, except in a river reach, where it is the
+   river's `bed_level_m` and the river's `water_level_m` stands above it. Cover is measured from that surface to the
+   crown. The water table is the river's water level in a river reach; elsewhere the groundwater level, taken at the
+   ground surface where it stands above it (a warning says where: open water there belongs in [[rivers]]).
+3. Stresses (`settle.face.vertical_stress`): each layer's `unit_weight_kn_m3` is its total unit weight, above and
+   below the water table alike; pore pressure is hydrostatic below the water table and zero above it (no suction).
+   Free water over a river bed adds gamma_w h_w to the total stress and to the pore pressure.
+4. Minimum support at the crown, `support_min_kpa`:
+   - drained, every ground: the wedge-and-silo model (`anagnostou_kovari_support`) on a square face B = H = D (the
+     tunnel's outer diameter: the face's full height, the larger of the two squares methods.md section 7.1 c
+     names), with the silo through the cover layers one by one, and the wedge with the thickness-weighted
+     effective unit weight of the face and the SMALLEST friction angle and the smallest cohesion of the layers the
+     face cuts (Broere 1998 shows that averaging a soft layer with a stiff one under-estimates the support a mixed
+     face needs). The effective support s' is taken as no less than 0: a face that stands alone still needs the
+     water pressure. The model assumes the slurry forms a filter cake that passes its whole excess pressure to the
+     soil skeleton; in coarse ground slurry infiltrates and less reaches it (Broere 2015, methods.md section 7),
+     which this check does not model. Required, DAUB-style partial factors (methods.md section 7.1 c, from memory):
+     water_pressure_factor u + earth_pressure_factor s', checked at the crown, the axis and the invert and brought
+     to the crown through the slurry column (`axis_to_crown`); the largest governs.
+   - undrained, where the layer at the axis is cohesive: Broms & Bennermark (1967). `stability_ratio_n` is N with no
+     support (flagged `n_above_critical` above the critical value); the total support at the axis that brings N down
+     to the critical value, brought to the crown, is a second requirement.
+   - `support_min_kpa` = the larger requirement + `support_margin_kpa`.
+5. Maximum support at the crown, `support_max_kpa`: the smaller of
+   - uplift: `blowout_kpa` (the total vertical stress at the crown, soil and free water) / `blowout_factor`, or, with
+     `blowout_side_shear`, the block lifted against its weight and the shear on its sides
+     (`uplift_with_shear_kpa`) / `blowout_factor`;
+   - fracture: the Delft cavity-expansion pressure (Luger & Hergarden 1988) at the axis of the layer there
+     (undrained form in a cohesive layer, drained otherwise), brought to the crown, / `fracture_factor`. The bore
+     radius is D/2 (the outer diameter is the excavated diameter); the largest plastic radius is a share of the
+     cover, and never less than D/2 (then the limit is the pressure at first yield). Not computed (NaN, and a
+     warning) where the layer at the axis has no `shear_modulus_mpa`.
+6. The window. The operator holds a target crown pressure that swings by +/- the operating tolerance of the support
+   mode of the reach (plain slurry or an air cushion). The lowest target that keeps every swing above the minimum
+   is `support_min_kpa + tolerance`; the highest that keeps every swing below the maximum is
+   `support_max_kpa - tolerance`. So
+       window_kpa = support_max_kpa - support_min_kpa - 2 x operating tolerance,
+   the room left to choose the target. It includes the partial factors and margin of the minimum, the factor(s) of
+   the maximum and the tolerance on both sides; nothing else. status: "closed" where window_kpa < 0, "narrow" where
+   0 <= window_kpa < window_margin_kpa, "open" otherwise. `low_cover` flags cover < low_cover_diameters x D (a rule
+   of the trade, common practice).
+
+All pressures are at crown level, kPa, compression positive; levels in m up positive; chainage in m along the 3-D
+axis. These are planning bounds: the operating pressures are set and reviewed by the responsible engineer, under
+local codes.
+"""
+from __future__ import annotations
+
+import csv
+import io
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import face
+from .errors import InputError
+from .ground import GroundModel
+from .model import Layer
+from .results import DriveResult
+from .route import MIN_COVER_DIAMETERS, position_at
+
+SUPPORT_MODES = ("slurry", "air_cushion")
+STATUSES = ("open", "narrow", "closed")  # the status vocabulary, from best to worst
+FRICTION_ANGLE_RANGE_DEG = (0.0, 50.0)
+SLURRY_UNIT_WEIGHT_RANGE_KN_M3 = (face.GAMMA_W, 16.0)
+SAME_CHAINAGE_M = 1e-3  # stations closer than this are one station [m]
+STEP_M = 0.01  # a second station this far on the other side of a reach end shows the step there [m]
+LEVEL_TOLERANCE_M = 1e-3  # a river bed this little above the ground is still at the ground [m]
+
+CAUTION = ("Planning bounds only: the operating face pressures are set and reviewed by the responsible engineer, "
+           "under local codes, and adjusted to what the drive shows.")
+
+
+# ------------------------------------------------------------------------------------------------------- inputs
+@dataclass(frozen=True)
+class LayerStrength:
+    """Strength of one ground layer, in the order of `Ground.layers`.
+
+    friction_angle_deg      effective friction angle phi', 0 to 50. [deg]
+    cohesion_kpa            effective cohesion c', >= 0. [kPa]
+    undrained_strength_kpa  undrained shear strength c_u, > 0: required for a cohesive layer, not allowed for a
+                            granular one. [kPa]
+    shear_modulus_mpa       shear modulus G for the Delft fracture pressure, > 0; optional (no fracture limit where
+                            the layer at the axis has none). [MPa]
+    """
+
+    friction_angle_deg: float
+    cohesion_kpa: float
+    undrained_strength_kpa: float | None = None
+    shear_modulus_mpa: float | None = None
+
+
+@dataclass(frozen=True)
+class River:
+    """Open water over part of a drive. Between the chainages (both included) the ground surface is the bed and the
+    water stands at `water_level_m` (design high water) above it."""
+
+    drive: str
+    from_chainage_m: float
+    to_chainage_m: float
+    bed_level_m: float
+    water_level_m: float
+    name: str = ""
+
+
+@dataclass(frozen=True)
+class SupportReach:
+    """Part of a drive with its own face support mode: "slurry" (plain slurry circuit) or "air_cushion" (slurry whose
+    pressure an air cushion holds)."""
+
+    from_chainage_m: float
+    to_chainage_m: float
+    mode: str
+
+
+@dataclass(frozen=True)
+class FaceOptions:
+    """Settings of the face check ([face] keys; every default documented with its status).
+
+    face_station_spacing_m        5.0   spacing of regular stations [m]; the issue's default.
+    slurry_unit_weight_kn_m3      11.0  slurry in the chamber, for crown <-> axis [kN/m^3]; within 10.5 to 12
+                                        (common practice, methods.md section 10); allowed 9.81 to 16.
+    support_mode                  "slurry"  mode where no support reach says otherwise.
+    earth_pressure_factor         1.5   on the effective support s' (DAUB style, from memory, methods.md 7.1 c).
+    water_pressure_factor         1.05  on the pore pressure (DAUB style, from memory, methods.md 7.1 c).
+    support_margin_kpa            0.0   added to the minimum [kPa]; the partial factors are the margin on the
+                                        mechanics and the tolerance is counted in the window, so none by default.
+    blowout_factor                1.1   on the uplift limit (from memory, DAUB; methods.md 7.2).
+    blowout_side_shear            False use the uplift limit with shear on the block's sides (methods.md 7.2, from
+                                        memory; "use with caution at very low cover").
+    fracture_factor               1.5   on the Delft pressure (common practice, low end of 1.5 to 2, methods.md 7.3).
+    fracture_radius_granular      0.667 largest plastic radius / cover in granular ground (2/3; from memory,
+                                        methods.md 7.3).
+    fracture_radius_cohesive      0.5   the same in cohesive ground (1/2; from memory, methods.md 7.3).
+    silo_lateral_ratio            0.8   K_s (Anagnostou & Kovari 1994, from memory, methods.md 7.1 c).
+    wedge_lateral_ratio           0.4   K_w (Anagnostou & Kovari 1994, from memory, methods.md 7.1 c).
+    critical_stability_ratio      6.0   Broms & Bennermark critical N (from memory, methods.md 7.1 a).
+    surcharge_kpa                 0.0   surface surcharge outside river reaches [kPa]; none by default.
+    tolerance_air_cushion_kpa     10.0  operating tolerance +/- with an air cushion [kPa] (methods.md 7.1 c gives
+                                        about +/-10 kPa for slurry shields, from memory).
+    tolerance_slurry_kpa          20.0  operating tolerance +/- of a plain slurry circuit [kPa]; NO SOURCE: the tool's
+                                        cautious assumption (twice the air cushion's); set it for the machine.
+    window_margin_kpa             10.0  a window narrower than this is "narrow" [kPa]; no source, the tool's default.
+    low_cover_diameters           2.0   cover below this many outer diameters is flagged (common practice,
+                                        methods.md section 10).
+    """
+
+    face_station_spacing_m: float = 5.0
+    slurry_unit_weight_kn_m3: float = 11.0
+    support_mode: str = "slurry"
+    earth_pressure_factor: float = 1.5
+    water_pressure_factor: float = 1.05
+    support_margin_kpa: float = 0.0
+    blowout_factor: float = 1.1
+    blowout_side_shear: bool = False
+    fracture_factor: float = 1.5
+    fracture_radius_granular: float = 2.0 / 3.0
+    fracture_radius_cohesive: float = 0.5
+    silo_lateral_ratio: float = face.ANAGNOSTOU_KOVARI_SILO_RATIO
+    wedge_lateral_ratio: float = face.ANAGNOSTOU_KOVARI_WEDGE_RATIO
+    critical_stability_ratio: float = face.BROMS_BENNERMARK_CRITICAL_N
+    surcharge_kpa: float = 0.0
+    tolerance_air_cushion_kpa: float = 10.0
+    tolerance_slurry_kpa: float = 20.0
+    window_margin_kpa: float = 10.0
+    low_cover_diameters: float = MIN_COVER_DIAMETERS
+
+    def tolerance_kpa(self, mode: str) -> float:
+        """Operating tolerance +/- of a support mode. [kPa]"""
+        return {"slurry": self.tolerance_slurry_kpa, "air_cushion": self.tolerance_air_cushion_kpa}[mode]
+
+
+# ------------------------------------------------------------------------------------------------------ result
+@dataclass
+class FaceStations:
+    """The face check along one drive: one row per station, all pressures at crown level. [kPa]"""
+
+    drive: str
+    outer_diameter_m: float
+    chainage_m: np.ndarray
+    x_m: np.ndarray
+    y_m: np.ndarray
+    axis_level_m: np.ndarray
+    ground_level_m: np.ndarray  # the ground surface model at the station
+    surface_level_m: np.ndarray  # what the face sees: the ground, or the river bed in a river reach
+    water_level_m: np.ndarray  # water table (river water level in a river reach)
+    in_river: np.ndarray  # bool
+    cover_m: np.ndarray  # surface (bed) to crown
+    total_stress_crown_kpa: np.ndarray
+    effective_stress_crown_kpa: np.ndarray
+    total_stress_axis_kpa: np.ndarray
+    effective_stress_axis_kpa: np.ndarray
+    water_pressure_kpa: np.ndarray  # at the crown
+    water_pressure_axis_kpa: np.ndarray
+    wedge_support_kpa: np.ndarray  # s', wedge-silo, unfactored, may be negative (face stands alone)
+    wedge_angle_deg: np.ndarray
+    wedge_silo_stress_kpa: np.ndarray  # sigma'_v of the silo on the wedge
+    stability_ratio_n: np.ndarray  # Broms & Bennermark N without support; NaN where the axis is not in clay
+    n_above_critical: np.ndarray  # bool
+    support_min_kpa: np.ndarray
+    min_governed_by: np.ndarray  # "wedge_silo" | "broms_bennermark"
+    blowout_kpa: np.ndarray  # total vertical stress at the crown, no factor
+    uplift_with_shear_kpa: np.ndarray  # blow-out with shear on the block's sides, no factor
+    fracture_kpa: np.ndarray  # Delft, brought to the crown, no factor; NaN where not computed
+    support_max_kpa: np.ndarray
+    max_limited_by: np.ndarray  # "blowout" | "uplift_shear" | "fracture"
+    support_mode: np.ndarray  # "slurry" | "air_cushion"
+    tolerance_kpa: np.ndarray  # operating tolerance +/-
+    window_kpa: np.ndarray
+    status: np.ndarray  # "open" | "narrow" | "closed"
+    low_cover: np.ndarray  # bool: cover_m < low_cover_limit_m
+    low_cover_limit_m: float = np.nan  # low_cover_diameters x D
+    slurry_unit_weight_kn_m3: float = 11.0
+    warnings: list[str] = field(default_factory=list)
+
+    def __len__(self) -> int:
+        return len(self.chainage_m)
+
+    @property
+    def crown_level_m(self) -> np.ndarray:
+        return self.axis_level_m + self.outer_diameter_m / 2.0
+
+    @property
+    def invert_level_m(self) -> np.ndarray:
+        return self.axis_level_m - self.outer_diameter_m / 2.0
+
+    @property
+    def hold_from_kpa(self) -> np.ndarray:
+        """Lowest target crown pressure: minimum + tolerance. [kPa]"""
+        return self.support_min_kpa + self.tolerance_kpa
+
+    @property
+    def hold_to_kpa(self) -> np.ndarray:
+        """Highest target crown pressure: maximum - tolerance (below hold_from_kpa where the window is closed). [kPa]"""
+        return self.support_max_kpa - self.tolerance_kpa
+
+    def at_axis(self, pressure_crown) -> np.ndarray:
+        """A crown pressure of these stations brought to the axis through the slurry column. [kPa]"""
+        return face.crown_to_axis(pressure_crown, self.slurry_unit_weight_kn_m3, self.outer_diameter_m)
+
+
+# -------------------------------------------------------------------------------------------------- validation
+def _bad(where: str, key: str, what: str, value) -> InputError:
+    shown = f'"{value}"' if isinstance(value, str) else f"{value:g}" if isinstance(value, (int, float)) else value
+    return InputError(f"{where}: {key} must be {what}; got {shown}")
+
+
+def _number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and bool(np.isfinite(value))
+
+
+def check_face_options(options: FaceOptions, where: str = "project") -> None:
+    """Raise InputError naming the [face] key whose value is out of range."""
+    label = f"{where} [face]"
+    lo_gs, hi_gs = SLURRY_UNIT_WEIGHT_RANGE_KN_M3
+    rules = {
+        "face_station_spacing_m": (lambda v: v > 0, "a number of metres more than 0"),
+        "slurry_unit_weight_kn_m3": (lambda v: lo_gs <= v <= hi_gs,
+                                     f"a number from {lo_gs:g} (water) to {hi_gs:g} kN/m3"),
+        "earth_pressure_factor": (lambda v: v >= 1, "a factor of at least 1"),
+        "water_pressure_factor": (lambda v: v >= 1, "a factor of at least 1"),
+        "support_margin_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
+        "blowout_factor": (lambda v: v >= 1, "a factor of at least 1"),
+        "fracture_factor": (lambda v: v >= 1, "a factor of at least 1"),
+        "fracture_radius_granular": (lambda v: 0 < v <= 1, "a share of the cover more than 0 and at most 1"),
+        "fracture_radius_cohesive": (lambda v: 0 < v <= 1, "a share of the cover more than 0 and at most 1"),
+        "silo_lateral_ratio": (lambda v: 0 < v <= 3, "a ratio more than 0 and at most 3"),
+        "wedge_lateral_ratio": (lambda v: 0 <= v <= 3, "a ratio from 0 to 3"),
+        "critical_stability_ratio": (lambda v: v > 0, "a number more than 0"),
+        "surcharge_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
+        "tolerance_air_cushion_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
+        "tolerance_slurry_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
+        "window_margin_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
+        "low_cover_diameters": (lambda v: v > 0, "a number more than 0"),
+    }
+    for key, (ok, what) in rules.items():
+        value = getattr(options, key)
+        if not _number(value) or not ok(value):
+            raise _bad(label, key, what, value)
+    if options.support_mode not in SUPPORT_MODES:
+        raise _bad(label, "support_mode", "one of " + ", ".join(f'"{m}"' for m in SUPPORT_MODES),
+                   options.support_mode)
+    if not isinstance(options.blowout_side_shear, bool):
+        raise _bad(label, "blowout_side_shear", "true or false", options.blowout_side_shear)
+
+
+def check_layer_strengths(strengths, layers: tuple[Layer, ...], where: str = "project") -> None:
+    """Raise InputError naming the layer and key of a strength that is missing or out of range."""
+    if len(strengths) != len(layers):
+        raise InputError(f"{where} [[ground.layers]]: {len(layers)} layers but strengths for {len(strengths)}; "
+                         "give friction_angle_deg and cohesion_kpa for every layer")
+    lo, hi = FRICTION_ANGLE_RANGE_DEG
+    for n, (s, layer) in enumerate(zip(strengths, layers), 1):
+        label = f'{where} [[ground.layers]] #{n} "{layer.name}"'
+        if not _number(s.friction_angle_deg) or not lo <= s.friction_angle_deg <= hi:
+            raise _bad(label, "friction_angle_deg", f"a number of degrees from {lo:g} to {hi:g}", s.friction_angle_deg)
+        if not _number(s.cohesion_kpa) or s.cohesion_kpa < 0:
+            raise _bad(label, "cohesion_kpa", "a number of kPa at least 0", s.cohesion_kpa)
+        cu = s.undrained_strength_kpa
+        if layer.behaviour == "cohesive":
+            if cu is None:
+                raise InputError(f"{label}: undrained_strength_kpa is required for a cohesive layer (the Broms & "
+                                 "Bennermark face check needs it)")
+            if not _number(cu) or cu <= 0:
+                raise _bad(label, "undrained_strength_kpa", "a number of kPa more than 0", cu)
+        elif cu is not None:
+            raise InputError(f'{label}: undrained_strength_kpa applies only to a cohesive layer; this one is '
+                             f'"{layer.behaviour}"; got {cu:g}')
+        g = s.shear_modulus_mpa
+        if g is not None and (not _number(g) or g <= 0):
+            raise _bad(label, "shear_modulus_mpa", "a number of MPa more than 0", g)
+
+
+def _check_reach_ends(label: str, a, b) -> None:
+    if not _number(a):
+        raise _bad(label, "from_chainage_m", "a number of metres", a)
+    if not _number(b) or b <= a:
+        raise InputError(f"{label}: to_chainage_m must be more than from_chainage_m ({a:g}); got {b}")
+
+
+def check_rivers(rivers, drive_names, where: str = "project") -> None:
+    """Raise InputError for a river that names no drive, has its ends the wrong way round, a water level below its
+    bed, or overlaps another river on the same drive. (Against the drive's geometry: `face_stations`.)"""
+    for n, river in enumerate(rivers, 1):
+        if river.drive not in drive_names:
+            names = ", ".join(f'"{d}"' for d in drive_names)
+            raise InputError(f'{_river_label(where, n, river)}: drive "{river.drive}" is not a drive of the project '
+                             f"(drives: {names})")
+    _check_numbered_rivers(list(enumerate(rivers, 1)), where)
+
+
+def _check_numbered_rivers(numbered, where: str) -> None:
+    """The checks of `check_rivers` that need no drive, on (number, River) pairs."""
+    for index, (n, river) in enumerate(numbered):
+        label = _river_label(where, n, river)
+        _check_reach_ends(label, river.from_chainage_m, river.to_chainage_m)
+        if not _number(river.bed_level_m):
+            raise _bad(label, "bed_level_m", "a level in metres", river.bed_level_m)
+        if not _number(river.water_level_m) or river.water_level_m < river.bed_level_m:
+            raise InputError(f"{label}: water_level_m must not be below the bed (bed_level_m = "
+                             f"{river.bed_level_m:g}); got {river.water_level_m}")
+        for m, other in numbered[:index]:
+            if other.drive == river.drive and river.from_chainage_m < other.to_chainage_m \
+                    and other.from_chainage_m < river.to_chainage_m:
+                raise InputError(f"{label}: chainage {river.from_chainage_m:g}-{river.to_chainage_m:g} m overlaps "
+                                 f"[[rivers]] #{m} ({other.from_chainage_m:g}-{other.to_chainage_m:g} m) on the "
+                                 f'same drive "{river.drive}"')
+
+
+def check_support_reaches(reaches, drive_name: str, where: str = "project") -> None:
+    """Raise InputError for a support reach with an unknown mode, its ends the wrong way round, or an overlap."""
+    for n, reach in enumerate(reaches, 1):
+        label = _support_label(where, drive_name, n)
+        _check_reach_ends(label, reach.from_chainage_m, reach.to_chainage_m)
+        if reach.mode not in SUPPORT_MODES:
+            raise _bad(label, "mode", "one of " + ", ".join(f'"{m}"' for m in SUPPORT_MODES), reach.mode)
+        for m, other in enumerate(reaches[: n - 1], 1):
+            if reach.from_chainage_m < other.to_chainage_m and other.from_chainage_m < reach.to_chainage_m:
+                raise InputError(f"{label}: chainage {reach.from_chainage_m:g}-{reach.to_chainage_m:g} m overlaps "
+                                 f"#{m} ({other.from_chainage_m:g}-{other.to_chainage_m:g} m)")
+
+
+def _river_label(where, n, river) -> str:
+    named = f' "{river.name}"' if river.name else ""
+    return f"{where} [[rivers]] #{n}{named}"
+
+
+def _support_label(where, drive_name, n) -> str:
+    return f'{where} [[drives]] "{drive_name}" [[drives.face_support]] #{n}'
+
+
+def _check_inside(label: str, a: float, b: float, drive: DriveResult) -> None:
+    lo, hi = drive.start_chainage_m, drive.end_chainage_m
+    if a < lo - 1e-6 or b > hi + 1e-6:
+        raise InputError(f'{label}: chainage {a:g}-{b:g} m is outside the drive "{drive.name}" '
+                         f"(chainage {lo:.2f} to {hi:.2f} m)")
+
+
+# -------------------------------------------------------------------------------------------------- procedure
+def _layer_index(level, tops):
+    """Index of the layer holding each level (the top layer extends upward, the last downward)."""
+    return np.clip(np.searchsorted(-tops, -np.asarray(level), side="right") - 1, 0, len(tops) - 1)
+
+
+def _segments(upper, lower, tops, water):
+    """The ground between two levels cut at layer tops and at the water table, from the top down.
+
+    Returns thickness (n, m) [m], layer index (n, m) and submerged (n, m) (below the water table)."""
+    cuts = np.column_stack([upper, lower, np.broadcast_to(tops, (len(upper), len(tops))), water])
+    cuts = np.clip(cuts, lower[:, None], upper[:, None])
+    cuts = -np.sort(-cuts, axis=1)  # descending
+    thickness = cuts[:, :-1] - cuts[:, 1:]
+    mid = 0.5 * (cuts[:, :-1] + cuts[:, 1:])
+    return thickness, _layer_index(mid, tops), mid < water[:, None]
+
+
+def _crossings(chain, levels, targets):
+    """Chainages where a polyline of levels (one per vertex) crosses any target level strictly between vertices."""
+    z0, z1 = levels[:-1, None], levels[1:, None]
+    dz = z1 - z0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = (np.asarray(targets)[None, :] - z0) / np.where(dz != 0, dz, np.nan)
+    hit = (frac > 0) & (frac < 1)
+    c0, c1 = chain[:-1, None], chain[1:, None]
+    return (c0 + np.nan_to_num(frac) * (c1 - c0))[hit]
+
+
+def station_chainages(drive: DriveResult, ground: GroundModel, rivers, spacing_m: float,
+                      support_reaches=()) -> np.ndarray:
+    """Chainages of the stations of a drive (see the module docstring, step 1), sorted, none closer than 1 mm. [m]"""
+    chain = drive.chainage_m
+    axis = drive.axis_xyz_m[:, 2]
+    tops = np.array([layer.top_level_m for layer in ground.ground.layers], dtype=float)
+    targets = np.append(tops[1:], ground.ground.groundwater_level_m)
+    half = drive.outer_diameter_m / 2.0
+    hard = [chain] + [_crossings(chain, axis + off, targets) for off in (half, 0.0, -half)]
+    hard += [[r.from_chainage_m - STEP_M, r.from_chainage_m, r.to_chainage_m, r.to_chainage_m + STEP_M]
+             for r in rivers]
+    hard += [[r.from_chainage_m - STEP_M, r.from_chainage_m, r.to_chainage_m - STEP_M, r.to_chainage_m]
+             for r in support_reaches]
+    hard = np.unique(np.concatenate([np.asarray(h, dtype=float) for h in hard]))
+    hard = hard[(hard >= chain[0]) & (hard <= chain[-1])]
+    hard = hard[np.concatenate([[True], np.diff(hard) > SAME_CHAINAGE_M])]  # the first of each cluster
+    hard[-1] = chain[-1]  # the last cluster holds the end of the drive: keep the end exactly
+    regular = np.arange(chain[0], chain[-1], spacing_m)
+    gap = np.abs(regular[:, None] - hard[None, :]).min(axis=1)
+    return np.sort(np.concatenate([hard, regular[gap > SAME_CHAINAGE_M]]))
+
+
+def _runs(chain, flag) -> str:
+    edges = np.diff(np.concatenate([[0], flag.astype(int), [0]]))
+    starts, stops = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1
+    text = ", ".join(f"{chain[a]:.0f}-{chain[b]:.0f} m" if b > a else f"{chain[a]:.0f} m"
+                     for a, b in list(zip(starts, stops))[:6])
+    return text + (" ..." if len(starts) > 6 else "")
+
+
+def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(), options: FaceOptions | None = None,
+                  support_reaches=(), where: str = "project") -> FaceStations:
+    """Minimum and maximum face support pressure, and the window between them, at stations along one drive.
+
+    Parameters
+    ----------
+    drive : DriveResult            The drive's computed axis and chainage (`settle.route.build_drive`).
+    ground : GroundModel           Surface, layers and groundwater level.
+    strengths : sequence of LayerStrength   One per layer of `ground.ground.layers`, in that order.
+    rivers : sequence of River     All the project's rivers; those of other drives are ignored (their numbering in
+                                   messages is their place in this sequence).
+    options : FaceOptions          Settings; defaults as documented there.
+    support_reaches : sequence of SupportReach   This drive's support modes; elsewhere `options.support_mode`.
+    where : str                    The project file, for messages.
+
+    Returns
+    -------
+    FaceStations  One row per station; see the module docstring for what each pressure holds. [kPa, m]
+    """
+    options = options or FaceOptions()
+    layers = ground.ground.layers
+    check_face_options(options, where)
+    check_layer_strengths(strengths, layers, where)
+    check_support_reaches(support_reaches, drive.name, where)
+    mine = [(n, r) for n, r in enumerate(rivers, 1) if r.drive == drive.name]
+    _check_numbered_rivers(mine, where)
+    for n, river in mine:
+        _check_inside(_river_label(where, n, river), river.from_chainage_m, river.to_chainage_m, drive)
+    for n, reach in enumerate(support_reaches, 1):
+        _check_inside(_support_label(where, drive.name, n), reach.from_chainage_m, reach.to_chainage_m, drive)
+
+    d = float(drive.outer_diameter_m)
+    half = d / 2.0
+    gw = float(ground.ground.groundwater_level_m)
+    st = station_chainages(drive, ground, [r for _, r in mine], options.face_station_spacing_m, support_reaches)
+    p = position_at(drive.axis_xyz_m, drive.chainage_m, st)
+    x, y, axis = p[:, 0], p[:, 1], p[:, 2]
+    crown, invert = axis + half, axis - half
+    ground_level = np.asarray(ground.surface_level(x, y), dtype=float)
+    if np.isnan(ground_level).any():
+        k = int(np.argmax(np.isnan(ground_level)))
+        raise InputError(f'{where} [[drives]] "{drive.name}": station at chainage {st[k]:.1f} m is outside the '
+                         f"ground surface ({ground.ground.surface.source}); extend the surface points")
+
+    warnings: list[str] = []
+    surface = ground_level.copy()
+    water = np.minimum(gw, ground_level)
+    in_river = np.zeros(len(st), dtype=bool)
+    for n, river in mine:
+        inside = (st >= river.from_chainage_m - 1e-9) & (st <= river.to_chainage_m + 1e-9)
+        label = _river_label(where, n, river)
+        above = inside & (river.bed_level_m > ground_level + LEVEL_TOLERANCE_M)
+        if above.any():
+            k = int(np.argmax(above))
+            raise InputError(f"{label}: bed_level_m must not be above the ground surface; the surface is "
+                             f"{ground_level[k]:.2f} m at chainage {st[k]:.1f} m; got {river.bed_level_m:g}")
+        over = inside & (crown >= river.bed_level_m)
+        if over.any():
+            k = int(np.argmax(over))
+            raise InputError(f"{label}: bed_level_m must be above the tunnel crown ({crown[k]:.2f} m at chainage "
+                             f"{st[k]:.1f} m); got {river.bed_level_m:g}")
+        surface[inside] = river.bed_level_m
+        water[inside] = river.water_level_m
+        in_river |= inside
+    if (crown >= surface).any():
+        k = int(np.argmax(crown >= surface))
+        raise InputError(f'{where} [[drives]] "{drive.name}": the crown is above the ground surface at chainage '
+                         f"{st[k]:.1f} m (crown {crown[k]:.2f} m, surface {surface[k]:.2f} m)")
+    capped = ~in_river & (gw > ground_level)
+    if capped.any():
+        warnings.append(
+            f'drive "{drive.name}": groundwater_level_m ({gw:g} m) is above the ground surface at chainage '
+            f"{_runs(st, capped)} outside any river reach; the face check takes the water table at the surface "
+            "there and counts no free water. If there is open water, describe it with [[rivers]].")
+    cover = surface - crown
+
+    tops = np.array([layer.top_level_m for layer in layers], dtype=float)
+    gamma = np.array([layer.unit_weight_kn_m3 for layer in layers], dtype=float)
+    phi_l = np.array([s.friction_angle_deg for s in strengths], dtype=float)
+    c_l = np.array([s.cohesion_kpa for s in strengths], dtype=float)
+    cu_l = np.array([np.nan if s.undrained_strength_kpa is None else s.undrained_strength_kpa for s in strengths])
+    g_l = np.array([np.nan if s.shear_modulus_mpa is None else s.shear_modulus_mpa * 1e3 for s in strengths])
+    cohesive_l = np.array([layer.behaviour == "cohesive" for layer in layers])
+
+    # Stresses at the crown, axis and invert.
+    tot_c, u_c, eff_c = face.vertical_stress(crown, surface, water, tops, gamma)
+    tot_a, u_a, eff_a = face.vertical_stress(axis, surface, water, tops, gamma)
+    _, u_i, _ = face.vertical_stress(invert, surface, water, tops, gamma)
+
+    # Minimum, drained: wedge and silo.
+    t_cov, j_cov, wet_cov = _segments(surface, crown, tops, water)
+    g_cov = gamma[j_cov] - face.GAMMA_W * wet_cov
+    t_face, j_face, wet_face = _segments(crown, invert, tops, water)
+    g_face = (t_face * (gamma[j_face] - face.GAMMA_W * wet_face)).sum(axis=1) / d
+    present = t_face > 0
+    phi_face = np.where(present, phi_l[j_face], np.inf).min(axis=1)
+    c_face = np.where(present, c_l[j_face], np.inf).min(axis=1)
+    q = np.where(in_river, 0.0, options.surcharge_kpa)
+    s_eff, angle, silo = face.anagnostou_kovari_support(
+        d, d, g_face, phi_face, c_face, t_cov, g_cov, phi_l[j_cov], c_l[j_cov],
+        options.silo_lateral_ratio, options.wedge_lateral_ratio, q)
+    earth = options.earth_pressure_factor * np.clip(s_eff, 0.0, None)
+    fw, gs = options.water_pressure_factor, options.slurry_unit_weight_kn_m3
+    drained = np.maximum.reduce([fw * u_c + earth,
+                                 face.axis_to_crown(fw * u_a + earth, gs, d),
+                                 fw * u_i + earth - gs * d])  # the invert is D below the crown
+
+    # Minimum, undrained: Broms & Bennermark where the axis is in a cohesive layer.
+    j_axis = _layer_index(axis, tops)
+    clay = cohesive_l[j_axis]
+    cu = np.where(clay, cu_l[j_axis], np.nan)
+    with np.errstate(invalid="ignore"):
+        n_ratio = np.where(clay, face.broms_bennermark_stability_ratio(tot_a, np.where(clay, cu, 1.0), 0.0, q), np.nan)
+    undrained = np.where(clay, face.axis_to_crown(
+        face.broms_bennermark_support(tot_a, np.where(clay, cu, 0.0), options.critical_stability_ratio, q), gs, d),
+        -np.inf)
+    support_min = np.maximum(drained, undrained) + options.support_margin_kpa
+    min_by = np.where(undrained > drained, "broms_bennermark", "wedge_silo")
+
+    # Maximum: uplift (with or without side shear) and fracture.
+    shear = face.uplift_resistance_with_shear(tot_c, d, t_cov, g_cov, phi_l[j_cov], c_l[j_cov])
+    uplift = (shear if options.blowout_side_shear else tot_c) / options.blowout_factor
+    g_axis = g_l[j_axis]
+    has_g = np.isfinite(g_axis)
+    ratio = np.where(clay, options.fracture_radius_cohesive, options.fracture_radius_granular)
+    plastic = np.maximum(ratio * cover, half)
+    safe_g = np.where(has_g, g_axis, 1.0)
+    p_axis = np.where(clay,
+                      face.delft_fracture_pressure_undrained(tot_a, np.where(clay, cu, 1.0), safe_g, half, plastic),
+                      face.delft_fracture_pressure(eff_a, u_a, phi_l[j_axis], c_l[j_axis], safe_g, half, plastic))
+    fracture = np.where(has_g, face.axis_to_crown(p_axis, gs, d), np.nan)
+    fracture_limit = fracture / options.fracture_factor
+    support_max = np.fmin(uplift, fracture_limit)
+    max_by = np.where(fracture_limit < uplift, "fracture", "uplift_shear" if options.blowout_side_shear else "blowout")
+    if (~has_g).any():
+        names = sorted({layers[j].name for j in j_axis[~has_g]})
+        warnings.append(f'drive "{drive.name}": no shear_modulus_mpa for layer(s) {", ".join(names)} at the axis; '
+                        f"no fracture limit at chainage {_runs(st, ~has_g)} (the uplift limit alone)")
+
+    # Window.
+    # A support reach holds from its start up to (not including) its end; the end of the drive takes the mode
+    # just before it.
+    mode = np.full(len(st), options.support_mode, dtype=object)
+    at = np.where(st >= st[-1], st - SAME_CHAINAGE_M, st)
+    for reach in support_reaches:
+        mode[(at >= reach.from_chainage_m) & (at < reach.to_chainage_m)] = reach.mode
+    tol = np.array([options.tolerance_kpa(m) for m in mode])
+    window = support_max - support_min - 2.0 * tol
+    status = np.where(window < 0, "closed", np.where(window < options.window_margin_kpa, "narrow", "open"))
+    low_limit = options.low_cover_diameters * d
+    low = cover < low_limit
+    for word in ("closed", "narrow"):
+        hit = status == word
+        if hit.any():
+            warnings.append(f'drive "{drive.name}": face support window {word} at chainage {_runs(st, hit)}; '
+                            f"smallest window {window[hit].min():.1f} kPa")
+
+    return FaceStations(
+        drive=drive.name, outer_diameter_m=d, chainage_m=st, x_m=x, y_m=y, axis_level_m=axis,
+        ground_level_m=ground_level, surface_level_m=surface, water_level_m=water, in_river=in_river,
+        cover_m=cover, total_stress_crown_kpa=tot_c, effective_stress_crown_kpa=eff_c,
+        total_stress_axis_kpa=tot_a, effective_stress_axis_kpa=eff_a, water_pressure_kpa=u_c,
+        water_pressure_axis_kpa=u_a, wedge_support_kpa=s_eff, wedge_angle_deg=angle, wedge_silo_stress_kpa=silo,
+        stability_ratio_n=n_ratio, n_above_critical=np.nan_to_num(n_ratio) > options.critical_stability_ratio,
+        support_min_kpa=support_min, min_governed_by=min_by.astype(object), blowout_kpa=tot_c,
+        uplift_with_shear_kpa=shear, fracture_kpa=fracture, support_max_kpa=support_max,
+        max_limited_by=max_by.astype(object), support_mode=mode, tolerance_kpa=tol, window_kpa=window,
+        status=status.astype(object), low_cover=low, low_cover_limit_m=low_limit, slurry_unit_weight_kn_m3=gs,
+        warnings=warnings,
+    )
+
+
+# ----------------------------------------------------------------------------------------------------- outputs
+#: Fields of the GIS point layer `face_stations`, in order: the nine of the issue, then what an engineer filters on.
+FACE_STATION_FIELDS = ("drive", "chainage_m", "cover_m", "water_pressure_kpa", "support_min_kpa", "blowout_kpa",
+                       "support_max_kpa", "window_kpa", "status")
+FACE_STATION_EXTRA_FIELDS = ("support_mode", "in_river", "low_cover", "stability_ratio_n", "n_above_critical",
+                             "fracture_kpa", "max_limited_by", "min_governed_by")
+OPERATOR_COLUMNS = ("drive", "chainage_m", "status", "support_mode", "tolerance_kpa", "hold_from_crown_kpa",
+                    "hold_to_crown_kpa", "hold_from_axis_kpa", "hold_to_axis_kpa")
+
+
+def face_station_fields(stations: FaceStations) -> dict[str, np.ndarray]:
+    """Columns of the `face_stations` point layer (the points are at `stations.x_m`, `stations.y_m`, on the axis in
+    plan). Values as computed, not rounded."""
+    n = len(stations)
+    columns = {"drive": np.full(n, stations.drive, dtype=object)}
+    for name in FACE_STATION_FIELDS[1:] + FACE_STATION_EXTRA_FIELDS:
+        columns[name] = getattr(stations, name)
+    return columns
+
+
+def operator_rows(stations: FaceStations) -> list[dict[str, str]]:
+    """The operator's table for one drive: per station, the band of crown (and axis) pressure to hold.
+
+    The band runs from support_min + tolerance to support_max - tolerance, so that swings of +/- the tolerance stay
+    inside the window. Where the window is closed the band is left empty. Pressures to 0.1 kPa, chainage to 0.01 m.
+    """
+    lo, hi = stations.hold_from_kpa, stations.hold_to_kpa
+    lo_axis, hi_axis = stations.at_axis(lo), stations.at_axis(hi)
+    rows = []
+    for k in range(len(stations)):
+        closed = stations.status[k] == "closed"
+        cell = (lambda v: "" if closed else f"{v:.1f}")
+        rows.append({
+            "drive": stations.drive, "chainage_m": f"{stations.chainage_m[k]:.2f}", "status": str(stations.status[k]),
+            "support_mode": str(stations.support_mode[k]), "tolerance_kpa": f"{stations.tolerance_kpa[k]:.1f}",
+            "hold_from_crown_kpa": cell(lo[k]), "hold_to_crown_kpa": cell(hi[k]),
+            "hold_from_axis_kpa": cell(lo_axis[k]), "hold_to_axis_kpa": cell(hi_axis[k]),
+        })
+    return rows
+
+
+def operator_csv_text(all_stations) -> str:
+    """The operator's CSV for one or more drives: two comment lines (starting "#") with the caution of the trade and
+    how the band is made, then a header and one row per station (`operator_rows`)."""
+    out = io.StringIO()
+    out.write(f"# {CAUTION}\n")
+    out.write("# Hold the face pressure between hold_from and hold_to (kPa, at the crown; at the axis through the "
+              "slurry column); the band allows for the operating tolerance. Empty where the window is closed.\n")
+    writer = csv.DictWriter(out, fieldnames=OPERATOR_COLUMNS, lineterminator="\n")
+    writer.writeheader()
+    for stations in ([all_stations] if isinstance(all_stations, FaceStations) else all_stations):
+        writer.writerows(operator_rows(stations))
+    return out.getvalue()
+
+
+def face_summary(stations: FaceStations) -> dict[str, float | int]:
+    """Attributes for the drive's `route` feature: the smallest window and where, and station counts by status."""
+    k = int(np.nanargmin(stations.window_kpa))
+    return {
+        "face_min_window_kpa": float(stations.window_kpa[k]),
+        "face_min_window_chainage_m": float(stations.chainage_m[k]),
+        "face_closed_stations": int(np.sum(stations.status == "closed")),
+        "face_narrow_stations": int(np.sum(stations.status == "narrow")),
+        "face_low_cover_stations": int(np.sum(stations.low_cover)),
+    }
