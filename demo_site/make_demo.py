@@ -112,6 +112,47 @@ def main():
         for pid, route, ch, off, d in rows:
             px, py = _set_out(route, ch, off)
             f.write(f"{pid},{X0 + px:.2f},{Y0 + py:.2f},{d}\n")
+    write_utilities(main_xy, cable_xy)
+
+
+def _line_across(route, chainage, half_length, angle_deg, n=21):
+    """Points of a straight line through the route at `chainage`, turned `angle_deg` from the route's direction."""
+    x0, y0 = _set_out(route, chainage, 0.0)
+    x1, y1 = _set_out(route, chainage + 1.0, 0.0)
+    heading = np.arctan2(y1 - y0, x1 - x0) + np.radians(angle_deg)
+    t = np.linspace(-half_length, half_length, n)
+    return np.column_stack([x0 + t * np.cos(heading), y0 + t * np.sin(heading)])
+
+
+def _line_along(route, ch_from, ch_to, offset, step=5.0):
+    """Points of a line following the route at a constant offset to its left."""
+    return np.array([_set_out(route, c, offset) for c in np.arange(ch_from, ch_to + 1e-9, step)])
+
+
+def write_utilities(main_xy, cable_xy):
+    """Invented buried services near the two drives, as a GeoJSON line layer with documented attributes."""
+    pipes = [
+        # id, material, OD mm, depth to axis m, pipe length m (None: continuous), line, extra attributes
+        ("CI-TW-1", "cast_iron", 325.0, 1.1, 3.66, _line_across(main_xy, 118.0, 40.0, 80.0),
+         {"allowable_joint_opening_mm": 5.0}),  # old cast-iron water main under Tanner's Walk
+        ("PE-TW-2", "pe", 180.0, 0.9, None, _line_along(main_xy, 130.0, 230.0, 3.0), {}),  # gas main alongside
+        ("VC-S-3", "vitrified_clay", 225.0, 2.3, 1.5, _line_across(main_xy, 205.0, 30.0, 55.0),
+         {"allowable_bending_strain_ue": 200.0, "allowable_axial_strain_ue": 200.0,
+          "allowable_joint_opening_mm": 10.0}),  # sewer; the owner's limits (invented for the demo)
+        ("DI-OM-4", "ductile_iron", 250.0, 1.3, 5.5, _line_across(main_xy, 410.0, 30.0, 95.0),
+         {"allowable_joint_opening_mm": 15.0}),
+        ("ST-RS-5", "steel", 406.0, 1.6, None, _line_across(cable_xy, 80.0, 30.0, 70.0), {}),  # near the face
+    ]
+    features = []
+    for pid, material, od, depth, length, line, extra in pipes:
+        props = {"id": pid, "material": material, "outer_diameter_mm": od, "depth_m": depth,
+                 "segment_length_m": length, **extra}
+        features.append({"type": "Feature", "properties": props, "geometry": {
+            "type": "LineString", "coordinates": [[round(X0 + a, 3), round(Y0 + b, 3)] for a, b in line]}})
+    collection = {"type": "FeatureCollection",
+                  "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::25832"}},
+                  "features": features}
+    (HERE / "utilities.geojson").write_text(json.dumps(collection, indent=1) + "\n")
 
 
 def _set_out(xy, chainage, offset):

@@ -11,6 +11,8 @@ Layers and fields (the names are part of the output format; GIS projects refer t
                       reporting points.
 - `settlement_bands`  MultiPolygon per band: band, lower_mm, upper_mm (see `gis_out.contours.settlement_bands`).
 - `settlement_lines`  MultiLineString per level: level_mm.
+- `utilities`         LineString per buried pipe (settle.pipelines.UTILITY_FIELDS): demands, allowables, verdict.
+- `utility_critical_points`  Point per pipe and check where its demand is greatest (CRITICAL_POINT_FIELDS).
 - `face_stations`     Point per face-check station (settle.face_stations): drive, chainage_m, cover_m,
                       water_pressure_kpa, support_min_kpa, blowout_kpa, support_max_kpa, window_kpa, status, and more.
                       With it the `route` layer gains face_min_window_kpa, face_min_window_chainage_m,
@@ -38,6 +40,8 @@ GEOMETRY_TYPES = {
     "settlement_bands": "MultiPolygon",
     "settlement_lines": "MultiLineString",
     "face_stations": "Point",
+    "utilities": "LineString",
+    "utility_critical_points": "Point",
 }
 
 ROUTE_FIELDS = ("drive", "start_chainage_m", "end_chainage_m", "length_m", "outer_diameter_m", "face_chainage_m",
@@ -152,6 +156,18 @@ def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFram
     return route
 
 
+def rows_frame(rows: list[dict], fields, crs: str, layer: str) -> gpd.GeoDataFrame:
+    """A layer from rows of dicts (each with the `fields` and a shapely "geometry"), columns in `fields` order.
+
+    With no rows the layer keeps its fields (as float) and geometry type, so it is still written with its schema.
+    """
+    if rows:
+        columns = {k: [r[k] for r in rows] for k in fields}
+    else:
+        columns = {k: np.empty(0) for k in fields}
+    return _frame(columns, [r["geometry"] for r in rows], crs, layer)
+
+
 def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     """All GIS layers of a run, keyed by layer name, in the project CRS.
 
@@ -174,6 +190,13 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     levels = project.output.contour_levels_mm
     layers["settlement_bands"] = bands_frame(settlement_bands(result.tiles, levels, levels_where), crs)
     layers["settlement_lines"] = lines_frame(settlement_lines(result.tiles, levels, levels_where), crs)
+    if result.utilities is not None:
+        from settle.pipelines import CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows, utility_rows
+
+        pipes = project.utilities
+        layers["utilities"] = rows_frame(utility_rows(pipes, result.utilities), UTILITY_FIELDS, crs, "utilities")
+        layers["utility_critical_points"] = rows_frame(critical_point_rows(pipes, result.utilities),
+                                                       CRITICAL_POINT_FIELDS, crs, "utility_critical_points")
     if result.face:
         layers["route"] = _with_face_summary(layers["route"], result.face)
         layers["face_stations"] = face_frame(result.face, crs)

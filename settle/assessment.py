@@ -1,6 +1,6 @@
 """The orchestrator: the engineer's procedure, step by step.
 
-    result = Assessment(project).greenfield().face().result
+    result = Assessment(project).greenfield().utilities().face().result
 
 Each step can be run and tested alone; the numbers come from the model functions in `troughs`, superposed by
 `field`, on the geometry of `route`.
@@ -33,6 +33,7 @@ class Assessment:
         self.elements: Elements | None = None
         self._result: Result | None = None
         self._face: list = []
+        self._utilities = None
 
     def _timed(self, name, started):
         self.timings[name] = time.perf_counter() - started
@@ -90,7 +91,23 @@ class Assessment:
             warnings=self.warnings,
             timings_s=self.timings,
             face=self._face,
+            utilities=self._utilities,
         )
+        return self
+
+    def utilities(self) -> "Assessment":
+        """Strains, joint rotations and openings of every buried pipe in [utilities], and their verdicts."""
+        p = self.project
+        if p.utilities is None:
+            return self
+        from .pipelines import assess_utilities
+
+        t = time.perf_counter()
+        self._utilities = assess_utilities(p.utilities, self.movements_at, p.utility_options)
+        self.warnings.extend(self._utilities.warnings)
+        self._timed("utilities", t)
+        if self._result is not None:
+            self._result.utilities = self._utilities
         return self
 
     def face(self) -> "Assessment":
@@ -134,4 +151,4 @@ def run(project: Project | str | Path, progress=None) -> Result:
         from .project import load_project
 
         project = load_project(project)
-    return Assessment(project, progress).greenfield().face().result
+    return Assessment(project, progress).greenfield().utilities().face().result

@@ -86,6 +86,8 @@ def _run(args) -> int:
     summary_path = out / "summary.json"
     gis_out.write_geopackage(gpkg, gis_out.frames(result))
     outputs = {"geopackage": gpkg.name, "summary": summary_path.name}
+    if result.utilities is not None:
+        outputs["utilities_table"] = _write_rows_csv(out / "utilities.csv", _utility_table(result))
     if result.face:
         outputs.update(_write_face(result, out))
     summary = summarise(result, outputs=outputs)
@@ -102,6 +104,31 @@ def _run(args) -> int:
             )
         print(f"wrote {gpkg} and {summary_path}")
     return 0
+
+
+def _utility_table(result) -> list[dict]:
+    from .pipelines import utility_rows
+
+    return utility_rows(result.project.utilities, result.utilities, geometry=False)
+
+
+def _write_rows_csv(path: Path, rows: list[dict]) -> str:
+    """A CSV table of result rows (the assessment report's tables), written safely; the caution on line one."""
+    import csv
+    import io
+
+    import gis_out
+
+    from .summary import CAUTION
+
+    text = io.StringIO()
+    text.write(f"# {CAUTION}\n")
+    if rows:
+        writer = csv.DictWriter(text, fieldnames=list(rows[0]), lineterminator="\n")
+        writer.writeheader()
+        writer.writerows({k: ("" if isinstance(v, float) and v != v else v) for k, v in r.items()} for r in rows)
+    gis_out.write_text_atomic(path, text.getvalue())
+    return path.name
 
 
 def _slug(name: str) -> str:

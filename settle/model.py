@@ -113,4 +113,7 @@ class Project:
     strengths: tuple = ()
     rivers: tuple = ()  # settle.face_stations.River items
     face: object | None = None  # settle.face_stations.FaceOptions; None = the documented defaults
+    # Buried utilities (settle.pipelines): the lines read from [utilities] file, and the assessment's settings.
+    utilities: object | None = None  # settle.utility_lines.Utilities
+    utility_options: object | None = None  # settle.pipelines.UtilityOptions
     warnings: tuple[str, ...] = field(default_factory=tuple)

@@ -91,13 +91,16 @@ from pathlib import Path
 import pyproj
 
 from .errors import InputError
+from .pipelines import UtilityOptions
+from .utility_lines import VERTICALS as UTILITY_VERTICALS
+from .utility_lines import UtilityReadOptions, read_utilities
 from .face_stations import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach, check_face_options,
                             check_layer_strengths, check_rivers, check_support_reaches)
 from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output, Project, Reach, Surface
 from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,
                      read_surface_points, shown)
 
-TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face")
+TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
@@ -110,6 +113,7 @@ REACH_KEYS = ("from_chainage_m", "to_chainage_m", "volume_loss_pct", "trough_wid
 SUPPORT_KEYS = ("from_chainage_m", "to_chainage_m", "mode")
 RIVER_KEYS = ("name", "drive", "from_chainage_m", "to_chainage_m", "bed_level_m", "water_level_m")
 FACE_KEYS = tuple(f.name for f in dataclasses.fields(FaceOptions))
+UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
 OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm")
 
@@ -158,8 +162,10 @@ def load_project(path) -> Project:
         points = read_points(_path(table, "file", where, path.parent))
     output = _output(_table(doc, "output", name), f"{name} [output]")
     strengths, rivers, face = _face_inputs(doc, name, ground, drives)
+    utilities, utility_options = _utilities(doc, name, path.parent, crs, ground, warnings)
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
-                   warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face)
+                   warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face, utilities=utilities,
+                   utility_options=utility_options)
 
 
 # ------------------------------------------------------------------------------------------------ generic helpers
@@ -530,3 +536,31 @@ def _face_inputs(doc: dict, file: str, ground: Ground, drives) -> tuple[tuple, t
                          "friction_angle_deg and cohesion_kpa (and undrained_strength_kpa for cohesive layers) on "
                          "every [[ground.layers]] item")
     return strengths, tuple(rivers), face
+
+
+# ----------------------------------------------------------------------------------------------------- utilities
+def _utilities(doc: dict, file: str, folder: Path, crs: str, ground: Ground, warnings: list[str]):
+    """[utilities]: the buried pipes to assess, and the assessment's settings; (None, None) when absent."""
+    if "utilities" not in doc:
+        return None, None
+    where = f"{file} [utilities]"
+    table = _table(doc, "utilities", file)
+    _check_keys(table, UTILITY_KEYS, where)
+    from .ground import GroundModel
+
+    read = UtilityReadOptions(layer=_text(table, "layer", where, required=False),
+                              vertical=_text(table, "vertical", where, required=False, choices=UTILITY_VERTICALS,
+                                             default="depth"),
+                              surface_level=GroundModel(ground).surface_level, key=where)
+    utilities = read_utilities(_path(table, "file", where, folder), crs, read)
+    warnings.extend(utilities.warnings)
+    defaults = UtilityOptions()
+    options = UtilityOptions(
+        sample_spacing_m=_number(table, "sample_spacing_m", where, required=False,
+                                 default=defaults.sample_spacing_m, gt=0.0, le=0.5),
+        curvature_step_m=_number(table, "curvature_step_m", where, required=False,
+                                 default=defaults.curvature_step_m, gt=0.0, le=0.25),
+        near_limit_fraction=_number(table, "near_limit_fraction", where, required=False,
+                                    default=defaults.near_limit_fraction, gt=0.0, lt=1.0),
+        key=where)
+    return utilities, options

@@ -128,6 +128,7 @@ class Result:
     warnings: list[str]
     timings_s: dict[str, float] = field(default_factory=dict)
     face: list = field(default_factory=list)  # settle.face_stations.FaceStations per drive, when the check ran
+    utilities: object | None = None  # settle.pipelines.UtilityResults, when the project has [utilities]
 
     @property
     def lost_volume_m3(self) -> float:

@@ -88,6 +88,10 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
         }
     if summary["max_compressive_strain"]:  # reported as a signed (negative) strain
         summary["max_compressive_strain"]["strain_ue"] *= -1
+    if result.utilities is not None:
+        from .pipelines import status_counts
+
+        summary["utilities"] = {"pipes": len(result.utilities), "by_status": status_counts(result.utilities)}
     if result.face:
         from .face_stations import face_summary
 

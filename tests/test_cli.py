@@ -32,7 +32,7 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
     assert done.returncode == 0, done.stderr
     gpkg = out / "ostrey.gpkg"
     assert sorted(fiona.listlayers(gpkg)) == sorted(["route", "grid", "settlement_bands", "settlement_lines", "points",
-                                                     "face_stations"])
+                                                     "face_stations", "utilities", "utility_critical_points"])
     fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
     assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
     assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
@@ -63,6 +63,19 @@ def test_demo_face_support_outputs(demo_run):
     assert 0.0 <= main["face_min_window_kpa"] < 10.0
     for name in summary["outputs"]["face_sections"]:
         assert (out / name).stat().st_size > 20_000
+
+
+def test_demo_utilities(demo_run):
+    _, out = demo_run
+    with fiona.open(out / "ostrey.gpkg", layer="utilities") as layer:
+        assert {"max_bending_strain_ue", "max_axial_strain_ue", "max_joint_rotation_deg", "max_joint_opening_mm",
+                "governing_check", "utilisation", "status"} <= set(layer.schema["properties"])
+        assert len(layer) == 5
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["utilities"]["pipes"] == 5 and sum(summary["utilities"]["by_status"].values()) == 5
+    table = (out / "utilities.csv").read_text().splitlines()
+    assert "qualified engineer" in table[0] and table[1].startswith("id,material,")
+    assert len(table) == 2 + 5
 
 
 def test_demo_summary(demo_run):

@@ -1,0 +1,647 @@
+"""Buried pipes and utilities: bending and axial strain, joint rotation and joint opening along every pipe.
+
+Conventions (stated once; the project's, see `settle.results`):
+- settlement S positive downward; horizontal strain tensile positive, in microstrain (ue = 1e-6);
+- chainage s along a pipe is the plan distance from its first vertex [m]; the unit tangent t points toward increasing
+  chainage;
+- ground curvature along the pipe is sagging positive: kappa = -d2S/ds2 (the middle of a settlement trough sags,
+  kappa > 0) [1/m]; joint rotation is sagging positive too [rad, reported in deg];
+- joint opening is positive when a joint opens (pull-out), negative when it closes [mm].
+
+Assumptions (they belong in the README):
+- The pipe follows the ground: its movements are the greenfield movements at the depth of its axis (the subsurface
+  trough), which is conservative for flexible and jointed pipes (methods.md 6.1). A continuous pipe may carry a
+  `bending_reduction_factor` the user took from a pipe-soil interaction assessment (Vorster et al. 2005 relative
+  stiffness); it scales the bending strain only and is reported beside the results. It is 1 unless given.
+- Bending: the curvature is the second derivative of the settlement along the straight line tangent to the pipe,
+  kappa = t.H.t with H the Hessian of S, by central differences. This is the curvature of the profile along the
+  pipe's own chainage wherever the pipe is straight; along a bend in plan it leaves out the term grad(S).dt/ds, which
+  a rigid tilt of the ground produces without bending the pipe (at a polyline vertex it would be a spike).
+- Axial strain is the ground's horizontal strain along the pipe axis, t.E.t (E the horizontal strain tensor).
+- Joints (pipes with a segment length Lp): the joint positions are not known, so every sampled place is taken as a
+  joint and the worst is reported. The two pipes either side of a joint at s move with the ground at their
+  mid-points, s - Lp/2 and s + Lp/2 (clipped to the ends of the line): the joint rotates by the change of ground
+  slope between them and opens by the change of ground displacement between them, both taken along the tangent at
+  the joint. Where the curvature (strain) is uniform over Lp these are kappa Lp and eps Lp, the forms of methods.md
+  6.1; elsewhere they never exceed max|kappa| Lp and max(eps) Lp.
+- Strain limits: the bending strain is checked on its own; the axial strain in tension, and also in shortening for
+  materials whose limit holds both ways (`MaterialLimits.checks_compression`); the extreme fibre by the linear
+  interaction axial/allowable_axial + bending/allowable_bending, which is the extreme-fibre strain over the limit when
+  the two limits are equal (our choice of combination, documented here).
+- A pipe any of whose sampled places lies at or below the crown of a drive that reaches it (the movements come back
+  as NaN there) crosses the tunnel: it gets no numbers, status "crosses the tunnel" and a warning.
+
+Sampling: every pipe is sampled at equal steps of at most `sample_spacing_m` (0.5 m by default) along its chainage.
+Then, around the two highest local peaks of each demand on each pipe (peaks above 0.1 % of the largest over all pipes),
+the line is sampled ten times finer over one step either side, so the maxima do not depend on where the samples fell.
+
+References
+----------
+[AYS86]  Attewell, P. B., Yeates, J. & Selby, A. R. (1986). Soil movements induced by tunnelling and their effects on
+         pipelines and structures. Blackie, Glasgow. (Pipe following the ground; joint rotation and pull-out of
+         jointed pipes; from memory in methods.md 6.1.)
+[BMNT96] Bracegirdle, Mair, Nyren & Taylor (1996). A methodology for evaluating potential damage to cast iron pipes
+         induced by tunnelling. Geotechnical Aspects of Underground Construction in Soft Ground (GAUCSG), London,
+         Mair & Taylor (eds), Balkema, 569-575. (Steps: ground slope, joint rotation and pull-out, pipe strains;
+         worst joint location.)
+[VKSM05] Vorster, Klar, Soga & Mair (2005). Estimating the effects of tunneling on existing pipelines. J. Geotech.
+         Geoenviron. Eng. 131(11). (Relative pipe-soil stiffness, from memory in methods.md 6.1; its charts are not
+         available to us: the reduction factor is a user input.)
+Formulas as collected in ../shared/methods.md section 6.1; greenfield movements of sections 2 to 4.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+import shapely
+
+from .errors import InputError
+from .results import Movements
+from .tables import shown
+from .utility_lines import Utilities
+
+#: The checks, as (field prefix, words used in `governing_check` and messages).
+CHECKS = (("bending", "bending strain"), ("axial", "axial strain"), ("fibre", "fibre strain"),
+          ("joint_rotation", "joint rotation"), ("joint_opening", "joint opening"))
+CHECK_WORDS = tuple(words for _, words in CHECKS)
+ALLOWABLE_OF_CHECK = {"bending": "allowable_bending_strain_ue", "axial": "allowable_axial_strain_ue",
+                      "joint_rotation": "allowable_joint_rotation_deg", "joint_opening": "allowable_joint_opening_mm"}
+WITHIN, NEAR, EXCEEDS, NOT_CHECKED, CROSSES = ("within limits", "near limit", "exceeds", "not checked",
+                                               "crosses the tunnel")
+STATUSES = (WITHIN, NEAR, EXCEEDS, NOT_CHECKED, CROSSES)
+REFINE_FACTOR = 10  # refinement sampling is this many times finer than the first pass
+REFINE_PEAKS = 2  # highest local peaks refined per demand and pipe
+REFINE_FLOOR = 1e-3  # peaks below this share of the largest value over all pipes are not refined
+
+UTILITY_FIELDS = (
+    "id", "material", "outer_diameter_mm", "segment_length_m", "length_m", "min_depth_m", "max_depth_m",
+    "max_settlement_mm", "max_ground_slope", "max_bending_strain_ue", "max_axial_strain_ue", "min_axial_strain_ue",
+    "max_fibre_strain_ue", "min_fibre_strain_ue", "max_joint_rotation_deg", "max_joint_opening_mm",
+    "allowable_bending_strain_ue", "allowable_axial_strain_ue", "allowable_joint_rotation_deg",
+    "allowable_joint_opening_mm", "axial_limit_in", "limits_source", "bending_reduction_factor",
+    "bending_utilisation", "axial_utilisation", "fibre_utilisation", "joint_rotation_utilisation",
+    "joint_opening_utilisation", "utilisation", "governing_check", "governing_chainage_m", "status", "not_checked",
+)
+CRITICAL_POINT_FIELDS = (
+    "id", "check", "governs", "utilisation", "chainage_m", "depth_m", "settlement_mm", "curvature_per_m",
+    "bending_strain_ue", "axial_strain_ue", "joint_rotation_deg", "joint_opening_mm",
+)
+
+
+# ------------------------------------------------------------------------------------------------------ the methods
+def ground_curvature(settlement_behind, settlement_here, settlement_ahead, step):
+    """Curvature of the settlement profile by the central second difference, sagging positive.
+
+    Parameters
+    ----------
+    settlement_behind, settlement_here, settlement_ahead : array_like
+        Settlement at s - h, s, s + h along a straight line, positive downward. [m]
+    step : float  h. [m]
+
+    Returns
+    -------
+    ndarray  kappa = -(S(s+h) - 2 S(s) + S(s-h)) / h^2; Smax/i^2 at the centre of a Gaussian trough (methods.md 1).
+             The error is h^2/12 |S''''|, a relative 3 h^2 / (12 i^2) at the trough centre. [1/m]
+
+    References
+    ----------
+    methods.md 6.1: kappa = d2Sv/dy2 along a pipe across the tunnel; [AYS86].
+    """
+    h = float(step)
+    return -(np.asarray(settlement_ahead) - 2.0 * np.asarray(settlement_here) + np.asarray(settlement_behind)) / (h * h)
+
+
+def bending_strain(curvature, outer_diameter):
+    """Bending strain at the extreme fibre of a pipe that follows the ground: eps_b = (D/2) kappa.
+
+    Parameters
+    ----------
+    curvature : array_like       Ground curvature along the pipe at its axis depth, sagging positive. [1/m]
+    outer_diameter : array_like  Outer diameter of the pipe, D. [m]
+
+    Returns
+    -------
+    ndarray  Bending strain, positive when the bottom fibre stretches (sagging); the opposite fibre has the same
+             value with the other sign. [-]
+
+    References
+    ----------
+    [AYS86]; [BMNT96] step (c); methods.md 6.1.
+    """
+    return 0.5 * np.asarray(outer_diameter, dtype=float) * np.asarray(curvature, dtype=float)
+
+
+def axial_strain(strain_xx, strain_yy, strain_xy, tangent_x, tangent_y):
+    """Ground horizontal strain along the pipe axis, t.E.t: the axial strain of a pipe that follows the ground.
+
+    Parameters
+    ----------
+    strain_xx, strain_yy, strain_xy : array_like  Horizontal strain tensor at the pipe (tensor components; tensile
+                                                  positive). [any strain unit]
+    tangent_x, tangent_y : array_like             Unit tangent of the pipe in plan. [-]
+
+    Returns
+    -------
+    ndarray  eps_a = tx^2 exx + 2 tx ty exy + ty^2 eyy, in the unit of the strains given, tensile positive.
+
+    References
+    ----------
+    [AYS86]; methods.md 6.1 ("axial strain = ground horizontal strain at pipe level") and 3.
+    """
+    tx, ty = np.asarray(tangent_x, dtype=float), np.asarray(tangent_y, dtype=float)
+    return tx * tx * np.asarray(strain_xx) + 2.0 * tx * ty * np.asarray(strain_xy) + ty * ty * np.asarray(strain_yy)
+
+
+def extreme_fibre_strains(axial, bending):
+    """Strains at the two extreme fibres of a pipe under axial strain and bending.
+
+    Parameters
+    ----------
+    axial : array_like    Axial strain, tensile positive.
+    bending : array_like  Bending strain (either sign). [same unit]
+
+    Returns
+    -------
+    (ndarray, ndarray)  (axial + |bending|, axial - |bending|): the most tensile and the most compressive fibre.
+
+    References
+    ----------
+    [BMNT96] step (c); methods.md 6.1.
+    """
+    a, b = np.asarray(axial, dtype=float), np.abs(np.asarray(bending, dtype=float))
+    return a + b, a - b
+
+
+def joint_rotation(slope_x_behind, slope_y_behind, slope_x_ahead, slope_y_ahead, tangent_x, tangent_y):
+    """Rotation of a joint between two rigid pipes that follow the ground: the change of slope across the joint.
+
+    Parameters
+    ----------
+    slope_x_behind, slope_y_behind : array_like  Gradient of settlement at the middle of the pipe behind the joint. [-]
+    slope_x_ahead, slope_y_ahead : array_like    The same at the middle of the pipe ahead. [-]
+    tangent_x, tangent_y : array_like            Unit tangent of the line at the joint. [-]
+
+    Returns
+    -------
+    ndarray  theta = -(grad S_ahead - grad S_behind).t, sagging positive. With the middles one pipe length Lp apart
+             and a uniform curvature kappa between them, theta = kappa Lp. [rad]
+
+    References
+    ----------
+    [AYS86]; [BMNT96] step (b); methods.md 6.1 ("joint rotation ~ kappa Lp").
+    """
+    dx = np.asarray(slope_x_ahead) - np.asarray(slope_x_behind)
+    dy = np.asarray(slope_y_ahead) - np.asarray(slope_y_behind)
+    return -(dx * np.asarray(tangent_x) + dy * np.asarray(tangent_y))
+
+
+def joint_opening(ux_behind, uy_behind, ux_ahead, uy_ahead, tangent_x, tangent_y):
+    """Opening (pull-out) of a joint between two rigid pipes that follow the ground.
+
+    Parameters
+    ----------
+    ux_behind, uy_behind : array_like  Horizontal ground displacement at the middle of the pipe behind the joint.
+    ux_ahead, uy_ahead : array_like    The same at the middle of the pipe ahead. [any length unit]
+    tangent_x, tangent_y : array_like  Unit tangent of the line at the joint. [-]
+
+    Returns
+    -------
+    ndarray  delta = (u_ahead - u_behind).t, positive when the joint opens, in the unit of the displacements. With the
+             middles Lp apart and a uniform axial ground strain eps between them, delta = eps Lp.
+
+    References
+    ----------
+    [AYS86]; [BMNT96] step (b); methods.md 6.1 ("pull-out ~ eps_h,tensile Lp").
+    """
+    dx = np.asarray(ux_ahead) - np.asarray(ux_behind)
+    dy = np.asarray(uy_ahead) - np.asarray(uy_behind)
+    return dx * np.asarray(tangent_x) + dy * np.asarray(tangent_y)
+
+
+# --------------------------------------------------------------------------------------------------- the procedure
+@dataclass(frozen=True)
+class UtilityOptions:
+    """Settings of the utility assessment.
+
+    sample_spacing_m     largest step between samples along a pipe, more than 0 and at most 0.5. [m]
+    curvature_step_m     h of the central second difference for curvature, more than 0 and at most 0.25. [m]
+    near_limit_fraction  a utilisation from this up to 1 is "near limit"; more than 0 and less than 1 (our choice,
+                         0.8 by default; no published source). [-]
+    key                  how messages name the project table.
+    """
+
+    sample_spacing_m: float = 0.5
+    curvature_step_m: float = 0.05
+    near_limit_fraction: float = 0.8
+    key: str = "[utilities]"
+
+    def __post_init__(self):
+        checks = (("sample_spacing_m", self.sample_spacing_m, 0.5, "m"),
+                  ("curvature_step_m", self.curvature_step_m, 0.25, "m"))
+        for name, value, top, unit in checks:
+            if not (isinstance(value, (int, float)) and 0 < value <= top):
+                raise InputError(f"{self.key} {name} must be more than 0 and at most {top:g} {unit}; got {value!r}")
+        f = self.near_limit_fraction
+        if not (isinstance(f, (int, float)) and 0 < f < 1):
+            raise InputError(f"{self.key} near_limit_fraction must be more than 0 and less than 1; got {f!r}")
+
+
+@dataclass
+class UtilityProfiles:
+    """Every sampled place along every pipe, sorted by pipe then chainage (arrays of one length).
+
+    Joint values are those of a joint at that place (NaN on continuous pipes); NaN everywhere on a crossing pipe's
+    places below the crown.
+    """
+
+    pipe: np.ndarray  # index of the pipe in `Utilities`
+    chainage_m: np.ndarray
+    x_m: np.ndarray
+    y_m: np.ndarray
+    depth_m: np.ndarray
+    settlement_mm: np.ndarray
+    ground_slope: np.ndarray  # magnitude of the settlement gradient at the pipe [-]
+    curvature_per_m: np.ndarray  # along the pipe, sagging positive [1/m]
+    bending_strain_ue: np.ndarray  # extreme fibre, magnitude, after any bending_reduction_factor
+    axial_strain_ue: np.ndarray  # tensile positive
+    joint_rotation_deg: np.ndarray  # sagging positive
+    joint_opening_mm: np.ndarray  # opening positive
+    undefined: np.ndarray  # bool: a movement needed here came back NaN (at or below a tunnel crown)
+
+    def __len__(self) -> int:
+        return len(self.pipe)
+
+
+@dataclass
+class UtilityResults:
+    """Demands and verdict per pipe (arrays in the order of `Utilities`), with the sampled profiles.
+
+    Demands are NaN for a pipe that crosses the tunnel; joint values are NaN for continuous pipes. `check_utilisation`
+    maps each check prefix of `CHECKS` to the largest demand/allowable per pipe (NaN: no allowable, or the check does
+    not apply); `check_place` maps it to the index into `profiles` where that check's demand is greatest (-1: none).
+    """
+
+    ids: tuple[str, ...]
+    max_settlement_mm: np.ndarray
+    max_ground_slope: np.ndarray  # [-]
+    max_bending_strain_ue: np.ndarray
+    max_axial_strain_ue: np.ndarray  # most tensile axial strain (negative when the pipe only shortens)
+    min_axial_strain_ue: np.ndarray  # most compressive axial strain
+    max_fibre_strain_ue: np.ndarray  # most tensile extreme-fibre strain, axial + bending
+    min_fibre_strain_ue: np.ndarray  # most compressive extreme-fibre strain, axial - bending
+    max_joint_rotation_deg: np.ndarray  # largest |rotation|
+    max_joint_opening_mm: np.ndarray  # largest opening, 0 when every joint closes
+    check_utilisation: dict[str, np.ndarray]
+    check_place: dict[str, np.ndarray]
+    utilisation: np.ndarray  # largest of the check utilisations [-]
+    governing_check: tuple[str, ...]  # words of `CHECKS`, "" when none
+    governing_chainage_m: np.ndarray
+    status: tuple[str, ...]  # one of `STATUSES`
+    not_checked: tuple[str, ...]  # checks that apply but have no allowable value, comma separated
+    crossing_chainage_m: np.ndarray  # (n, 2) first and last chainage below a crown; NaN when none
+    profiles: UtilityProfiles
+    warnings: list[str] = field(default_factory=list)
+
+    def __len__(self) -> int:
+        return len(self.ids)
+
+
+class _Lines:
+    """All pipes' polylines in flat arrays, to locate places by (pipe, chainage) without a loop over pipes."""
+
+    def __init__(self, utilities: Utilities):
+        counts = np.array([len(xy) for xy in utilities.lines_xy])
+        self.first = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(int)
+        self.last_segment = self.first + counts - 2
+        self.xy = np.concatenate(utilities.lines_xy).astype(float)
+        self.depth = np.concatenate(utilities.depths_m).astype(float)
+        owner = np.repeat(np.arange(len(counts)), counts)
+        seg = np.hypot(*np.diff(self.xy, axis=0).T)
+        seg[self.first[1:] - 1] = 0.0  # no segment between one pipe's last vertex and the next pipe's first
+        step = np.concatenate([[0.0], seg])
+        step[self.first] = 0.0
+        cum = np.cumsum(step)
+        local = cum - cum[self.first][owner]
+        self.length = local[self.first + counts - 1]
+        self.offset = np.concatenate([[0.0], np.cumsum(self.length + 1.0)[:-1]])  # 1 m gap between pipes
+        self.vertex_key = local + self.offset[owner]
+
+    def locate(self, pipe: np.ndarray, s: np.ndarray):
+        """Plan position, depth and unit tangent at chainage s (clipped to the line) of pipes `pipe`."""
+        s = np.clip(s, 0.0, self.length[pipe])
+        key = s + self.offset[pipe]
+        seg = np.searchsorted(self.vertex_key, key, side="right") - 1
+        seg = np.clip(seg, self.first[pipe], self.last_segment[pipe])
+        a = (key - self.vertex_key[seg]) / (self.vertex_key[seg + 1] - self.vertex_key[seg])
+        d = self.xy[seg + 1] - self.xy[seg]
+        x = self.xy[seg, 0] + a * d[:, 0]
+        y = self.xy[seg, 1] + a * d[:, 1]
+        depth = self.depth[seg] + a * (self.depth[seg + 1] - self.depth[seg])
+        norm = np.hypot(d[:, 0], d[:, 1])
+        return x, y, depth, d[:, 0] / norm, d[:, 1] / norm
+
+    def uniform(self, spacing: float):
+        """Pipe index and chainage of samples at equal steps of at most `spacing` along every pipe."""
+        intervals = np.maximum(np.ceil(self.length / spacing - 1e-9), 1).astype(int)
+        counts = intervals + 1
+        pipe = np.repeat(np.arange(len(counts)), counts)
+        k = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
+        step = self.length / intervals
+        return pipe, k * step[pipe], step
+
+
+def _evaluate(lines: _Lines, utilities: Utilities, pipe, s, movements, options: UtilityOptions) -> dict:
+    """Movements and demands at places (pipe, chainage): one call of `movements` for all of them."""
+    n = len(s)
+    x, y, depth, tx, ty = lines.locate(pipe, s)
+    h = options.curvature_step_m
+    lp = utilities.segment_length_m[pipe]
+    j = np.flatnonzero(np.isfinite(lp))
+    xb, yb, db, _, _ = lines.locate(pipe[j], s[j] - lp[j] / 2.0)
+    xa, ya, da, _, _ = lines.locate(pipe[j], s[j] + lp[j] / 2.0)
+    m = movements(np.concatenate([x, x + h * tx, x - h * tx, xb, xa]),
+                  np.concatenate([y, y + h * ty, y - h * ty, yb, ya]),
+                  np.concatenate([depth, depth, depth, db, da]))
+    if len(m) != 3 * n + 2 * len(j):
+        raise ValueError(f"the movements callable returned {len(m)} places for {3 * n + 2 * len(j)}")
+    here, ahead, behind = slice(0, n), slice(n, 2 * n), slice(2 * n, 3 * n)
+    jb, ja = slice(3 * n, 3 * n + len(j)), slice(3 * n + len(j), 3 * n + 2 * len(j))
+    settle_m = m.settlement_mm / 1e3
+    curvature = ground_curvature(settle_m[behind], settle_m[here], settle_m[ahead], h)
+    od_m = utilities.outer_diameter_mm[pipe] / 1e3
+    bending = np.abs(bending_strain(curvature, od_m)) * utilities.bending_reduction_factor[pipe] * 1e6
+    axial = axial_strain(m.strain_xx_ue[here], m.strain_yy_ue[here], m.strain_xy_ue[here], tx, ty)
+    rotation = np.full(n, np.nan)
+    rotation[j] = np.degrees(joint_rotation(m.slope_x[jb], m.slope_y[jb], m.slope_x[ja], m.slope_y[ja], tx[j], ty[j]))
+    opening = np.full(n, np.nan)
+    opening[j] = joint_opening(m.ux_mm[jb], m.uy_mm[jb], m.ux_mm[ja], m.uy_mm[ja], tx[j], ty[j])
+    undefined = np.isnan(settle_m[here]) | np.isnan(settle_m[ahead]) | np.isnan(settle_m[behind])
+    undefined[j] |= np.isnan(settle_m[jb]) | np.isnan(settle_m[ja])
+    return dict(pipe=pipe, chainage_m=s, x_m=x, y_m=y, depth_m=depth, settlement_mm=m.settlement_mm[here],
+                ground_slope=np.hypot(m.slope_x[here], m.slope_y[here]), curvature_per_m=curvature,
+                bending_strain_ue=bending, axial_strain_ue=axial, joint_rotation_deg=rotation,
+                joint_opening_mm=opening, undefined=undefined)
+
+
+def _peaks_to_refine(values: dict, pipe: np.ndarray) -> np.ndarray:
+    """Indices of the highest local peaks, per pipe, of each demand worth refining."""
+    bending, axial = values["bending_strain_ue"], values["axial_strain_ue"]
+    demands = (bending, axial, -axial, axial + bending, bending - axial, np.abs(values["joint_rotation_deg"]),
+               values["joint_opening_mm"], values["ground_slope"], values["settlement_mm"])
+    same_prev = np.concatenate([[False], pipe[1:] == pipe[:-1]])
+    same_next = np.concatenate([pipe[1:] == pipe[:-1], [False]])
+    chosen = []
+    for q in demands:
+        q = np.where(np.isfinite(q), q, -np.inf)
+        top = q.max() if q.size else -np.inf
+        if not top > 0:
+            continue
+        left = np.where(same_prev, np.concatenate([[-np.inf], q[:-1]]), -np.inf)
+        right = np.where(same_next, np.concatenate([q[1:], [-np.inf]]), -np.inf)
+        cand = np.flatnonzero((q >= left) & (q >= right) & (q > REFINE_FLOOR * top))
+        order = cand[np.lexsort((-q[cand], pipe[cand]))]
+        p = pipe[order]
+        new_group = np.concatenate([[True], p[1:] != p[:-1]]) if p.size else np.empty(0, bool)
+        start = np.maximum.accumulate(np.where(new_group, np.arange(p.size), 0)) if p.size else np.empty(0, int)
+        chosen.append(order[np.arange(p.size) - start < REFINE_PEAKS])
+    return np.unique(np.concatenate(chosen)) if chosen else np.empty(0, int)
+
+
+def _merge(a: dict, b: dict, lines: _Lines) -> dict:
+    """Samples of both passes, sorted by pipe then chainage, each place once."""
+    both = {k: np.concatenate([a[k], b[k]]) for k in a}
+    key = both["chainage_m"] + lines.offset[both["pipe"]]
+    _, keep = np.unique(key, return_index=True)
+    return {k: v[keep] for k, v in both.items()}
+
+
+def _group_argmax(values: np.ndarray, pipe: np.ndarray, n: int):
+    """Largest value per pipe ignoring NaN, and its index (NaN and -1 for a pipe with no value)."""
+    w = np.where(np.isnan(values), -np.inf, values)
+    order = np.lexsort((-w, pipe))
+    first = order[np.searchsorted(pipe[order], np.arange(n))]
+    best = np.where(np.isneginf(w[first]), np.nan, values[first])
+    return best, np.where(np.isnan(best), -1, first)
+
+
+def assess_utilities(utilities: Utilities, movements: Callable[..., Movements],
+                     options: UtilityOptions = UtilityOptions()) -> UtilityResults:
+    """Strains, joint rotations and joint openings along every pipe, with a verdict per pipe.
+
+    Parameters
+    ----------
+    utilities : Utilities  The pipes (see `settle.utility_lines`).
+    movements : callable   movements(x_m, y_m, depth_m) -> `settle.results.Movements`, the greenfield movements
+                           (all drives superposed at the run's face positions) at places at a depth below the
+                           surface; NaN where a place is at or below the crown of a drive that reaches it.
+    options : UtilityOptions
+
+    Returns
+    -------
+    UtilityResults  Demands, utilisations, status and governing check per pipe; warnings for pipes that cross the
+                    tunnel and for checks without an allowable value.
+
+    Notes
+    -----
+    Steps: sample every pipe (module docstring); evaluate the movements at each sample, at the two curvature-stencil
+    places along its tangent and, for jointed pipes, at the middles of the pipes either side of a joint there; refine
+    around the peaks; take the largest demand of each check per pipe; divide by the allowable values. Assumptions in
+    the module docstring.
+    """
+    n = len(utilities)
+    lines = _Lines(utilities)
+    pipe, s, step = lines.uniform(options.sample_spacing_m)
+    values = _evaluate(lines, utilities, pipe, s, movements, options)
+    peaks = _peaks_to_refine(values, pipe)
+    if peaks.size:
+        k = np.concatenate([np.arange(1, REFINE_FACTOR), -np.arange(1, REFINE_FACTOR)]) / REFINE_FACTOR
+        rp = np.repeat(pipe[peaks], k.size)
+        rs = np.clip((s[peaks][:, None] + step[pipe[peaks]][:, None] * k).ravel(), 0.0, lines.length[rp])
+        values = _merge(values, _evaluate(lines, utilities, rp, rs, movements, options), lines)
+    return _verdict(utilities, UtilityProfiles(**values), options)
+
+
+def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> UtilityResults:
+    """Per-pipe demands, utilisations and status from the profiles."""
+    n, pipe = len(u), prof.pipe
+    crossing = np.bincount(pipe, weights=prof.undefined, minlength=n) > 0
+    keep = ~crossing[pipe]  # places of crossing pipes count for nothing
+    masked = lambda v: np.where(keep, v, np.nan)  # noqa: E731
+    bending, axial = masked(prof.bending_strain_ue), masked(prof.axial_strain_ue)
+    rotation, opening = masked(np.abs(prof.joint_rotation_deg)), masked(prof.joint_opening_mm)
+    both_ways = u.checks_compression[pipe]
+    axial_counted = np.where(both_ways, np.abs(axial), np.maximum(axial, 0.0))
+    fibre_counted = np.where(both_ways, np.abs(axial), axial) + bending
+
+    allow = {c: getattr(u, key)[pipe] for c, key in ALLOWABLE_OF_CHECK.items()}
+    demand = {"bending": bending, "axial": axial_counted, "fibre": fibre_counted, "joint_rotation": rotation,
+              "joint_opening": np.maximum(opening, 0.0)}
+    ratio = {
+        "bending": bending / allow["bending"],
+        "axial": axial_counted / allow["axial"],
+        "fibre": np.maximum(np.where(both_ways, np.abs(axial), axial) / allow["axial"] + bending / allow["bending"],
+                            0.0),
+        "joint_rotation": rotation / allow["joint_rotation"],
+        "joint_opening": np.maximum(opening, 0.0) / allow["joint_opening"],
+    }
+    check_utilisation, check_place = {}, {}
+    for c, _ in CHECKS:
+        best, at = _group_argmax(ratio[c], pipe, n)
+        _, at_demand = _group_argmax(demand[c], pipe, n)
+        check_utilisation[c] = best
+        check_place[c] = np.where(at >= 0, at, at_demand)
+
+    table = np.column_stack([check_utilisation[c] for c, _ in CHECKS])
+    table_w = np.where(np.isnan(table), -np.inf, table)
+    governing_k = np.argmax(table_w, axis=1)
+    utilisation = table_w[np.arange(n), governing_k]
+    checked = np.isfinite(utilisation)
+    utilisation = np.where(checked, utilisation, np.nan)
+    governing = tuple(CHECKS[k][1] if ok else "" for k, ok in zip(governing_k, checked))
+    place = np.array([check_place[CHECKS[k][0]][p] if ok else -1 for p, (k, ok) in enumerate(zip(governing_k,
+                                                                                                  checked))], int)
+    governing_chainage = np.where(place >= 0, prof.chainage_m[np.maximum(place, 0)], np.nan)
+
+    status = []
+    for p in range(n):
+        if crossing[p]:
+            status.append(CROSSES)
+        elif not checked[p]:
+            status.append(NOT_CHECKED)
+        elif utilisation[p] > 1.0:
+            status.append(EXCEEDS)
+        elif utilisation[p] >= options.near_limit_fraction:
+            status.append(NEAR)
+        else:
+            status.append(WITHIN)
+
+    jointed = u.jointed
+    applies = {"bending": np.ones(n, bool), "axial": np.ones(n, bool), "fibre": np.ones(n, bool),
+               "joint_rotation": jointed, "joint_opening": jointed}
+    no_limit = {"bending": np.isnan(u.allowable_bending_strain_ue), "axial": np.isnan(u.allowable_axial_strain_ue),
+                "joint_rotation": np.isnan(u.allowable_joint_rotation_deg),
+                "joint_opening": np.isnan(u.allowable_joint_opening_mm)}
+    no_limit["fibre"] = no_limit["bending"] | no_limit["axial"]
+    not_checked = tuple(", ".join(w for c, w in CHECKS if applies[c][p] and no_limit[c][p]) for p in range(n))
+
+    group = lambda v: _group_argmax(v, pipe, n)[0]  # noqa: E731
+    max_opening = group(opening)
+    undefined_s = np.where(prof.undefined, prof.chainage_m, np.nan)
+    crossing_range = np.column_stack([-group(-undefined_s), group(undefined_s)])
+
+    warnings = []
+    for p in np.flatnonzero(crossing):
+        a, b = crossing_range[p]
+        warnings.append(f"utility {shown(u.ids[p])} crosses the tunnel: between chainages {a:.1f} and {b:.1f} m "
+                        "along the pipe it lies at or below the crown of a drive, where the greenfield subsurface trough is "
+                        "not defined; no strains are given for it: refer it to the asset owner for a separate "
+                        "assessment")
+    for c, words in CHECKS:
+        short = [u.ids[p] for p in range(n) if applies[c][p] and no_limit[c][p] and not crossing[p]]
+        if short:
+            listed = ", ".join(shown(i) for i in short[:10]) + (" ..." if len(short) > 10 else "")
+            keys = ("allowable_bending_strain_ue and allowable_axial_strain_ue" if c == "fibre"
+                    else ALLOWABLE_OF_CHECK[c])
+            warnings.append(f"{len(short)} utilit{'y has' if len(short) == 1 else 'ies have'} no allowable {words} "
+                            f"(no default for the material and none given on the pipe), so it is not checked for "
+                            f"it; give {keys} on: {listed}")
+
+    return UtilityResults(
+        ids=u.ids,
+        max_settlement_mm=group(masked(prof.settlement_mm)),
+        max_ground_slope=group(masked(prof.ground_slope)),
+        max_bending_strain_ue=group(bending),
+        max_axial_strain_ue=group(axial),
+        min_axial_strain_ue=-group(-axial),
+        max_fibre_strain_ue=group(axial + bending),
+        min_fibre_strain_ue=-group(bending - axial),
+        max_joint_rotation_deg=group(rotation),
+        max_joint_opening_mm=np.where(np.isnan(max_opening), np.nan, np.maximum(max_opening, 0.0)),
+        check_utilisation=check_utilisation,
+        check_place=check_place,
+        utilisation=utilisation,
+        governing_check=governing,
+        governing_chainage_m=governing_chainage,
+        status=tuple(status),
+        not_checked=not_checked,
+        crossing_chainage_m=crossing_range,
+        profiles=prof,
+        warnings=warnings,
+    )
+
+
+# ---------------------------------------------------------------------------------------------------- output rows
+def utility_rows(utilities: Utilities, results: UtilityResults, geometry: bool = True) -> list[dict]:
+    """One dict per pipe with the fields of `UTILITY_FIELDS` (and a shapely "geometry", the plan line, unless
+    `geometry` is False: the CSV table). Lengths [m], strains [microstrain], rotations [deg], openings [mm]."""
+    u, r = utilities, results
+    lengths = u.length_m
+    rows = []
+    for p in range(len(u)):
+        row = {
+            "id": u.ids[p], "material": u.materials[p], "outer_diameter_mm": float(u.outer_diameter_mm[p]),
+            "segment_length_m": float(u.segment_length_m[p]), "length_m": float(lengths[p]),
+            "min_depth_m": float(u.depths_m[p].min()), "max_depth_m": float(u.depths_m[p].max()),
+            "max_settlement_mm": r.max_settlement_mm[p], "max_ground_slope": r.max_ground_slope[p],
+            "max_bending_strain_ue": r.max_bending_strain_ue[p], "max_axial_strain_ue": r.max_axial_strain_ue[p],
+            "min_axial_strain_ue": r.min_axial_strain_ue[p], "max_fibre_strain_ue": r.max_fibre_strain_ue[p],
+            "min_fibre_strain_ue": r.min_fibre_strain_ue[p], "max_joint_rotation_deg": r.max_joint_rotation_deg[p],
+            "max_joint_opening_mm": r.max_joint_opening_mm[p],
+            "allowable_bending_strain_ue": u.allowable_bending_strain_ue[p],
+            "allowable_axial_strain_ue": u.allowable_axial_strain_ue[p],
+            "allowable_joint_rotation_deg": u.allowable_joint_rotation_deg[p],
+            "allowable_joint_opening_mm": u.allowable_joint_opening_mm[p],
+            "axial_limit_in": "tension and shortening" if u.checks_compression[p] else "tension",
+            "limits_source": u.limits_source[p], "bending_reduction_factor": float(u.bending_reduction_factor[p]),
+        }
+        for c, _ in CHECKS:
+            row[f"{c}_utilisation"] = r.check_utilisation[c][p]
+        row.update({"utilisation": r.utilisation[p], "governing_check": r.governing_check[p],
+                    "governing_chainage_m": r.governing_chainage_m[p], "status": r.status[p],
+                    "not_checked": r.not_checked[p]})
+        row = {k: (float(v) if isinstance(v, np.floating) else v) for k, v in row.items()}
+        if geometry:
+            row["geometry"] = shapely.LineString(u.lines_xy[p])
+        rows.append(row)
+    return rows
+
+
+def critical_point_rows(utilities: Utilities, results: UtilityResults) -> list[dict]:
+    """Points where each check's demand is greatest on each pipe (layer `utility_critical_points`).
+
+    One row per pipe and check that has a place (joint checks only on jointed pipes), with the fields of
+    `CRITICAL_POINT_FIELDS` and a shapely Point "geometry"; `governs` is True on the row of the pipe's governing
+    check. A pipe that crosses the tunnel has one row, check "crosses the tunnel", at the middle of the stretch below
+    the crown. The demands are those at that place (the joint values for a joint there).
+    """
+    prof, rows = results.profiles, []
+
+    def row(p, check, k, governs, utilisation):
+        return {"id": utilities.ids[p], "check": check, "governs": bool(governs), "utilisation": float(utilisation),
+                "chainage_m": float(prof.chainage_m[k]), "depth_m": float(prof.depth_m[k]),
+                "settlement_mm": float(prof.settlement_mm[k]), "curvature_per_m": float(prof.curvature_per_m[k]),
+                "bending_strain_ue": float(prof.bending_strain_ue[k]),
+                "axial_strain_ue": float(prof.axial_strain_ue[k]),
+                "joint_rotation_deg": float(prof.joint_rotation_deg[k]),
+                "joint_opening_mm": float(prof.joint_opening_mm[k]),
+                "geometry": shapely.Point(prof.x_m[k], prof.y_m[k])}
+
+    for p in range(len(utilities)):
+        if results.status[p] == CROSSES:
+            mid = results.crossing_chainage_m[p].mean()
+            cand = np.flatnonzero((prof.pipe == p) & prof.undefined)
+            k = cand[np.argmin(np.abs(prof.chainage_m[cand] - mid))]
+            rows.append(row(p, CROSSES, k, True, np.nan))
+            continue
+        for c, words in CHECKS:
+            k = results.check_place[c][p]
+            if k >= 0:
+                rows.append(row(p, words, k, results.governing_check[p] == words, results.check_utilisation[c][p]))
+    return rows
+
+
+def status_counts(results: UtilityResults) -> dict[str, int]:
+    """Number of pipes in each status, every status listed (for summary.json)."""
+    return {s: int(sum(1 for t in results.status if t == s)) for s in STATUSES}
