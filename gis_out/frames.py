@@ -11,11 +11,13 @@ Layers and fields (the names are part of the output format; GIS projects refer t
                       reporting points.
 - `settlement_bands`  MultiPolygon per band: band, lower_mm, upper_mm (see `gis_out.contours.settlement_bands`).
 - `settlement_lines`  MultiLineString per level: level_mm.
-- `utilities`         LineString per buried pipe (settle.pipelines.UTILITY_FIELDS): demands, allowables, verdict.
+- `utilities`         LineString per buried pipe (settle.pipelines.UTILITY_FIELDS): demands, allowables, verdict;
+                      `status_class` is the status as an integer (0 within limits, 1 near limit, 2 exceeds,
+                      3 not checked, 4 crosses the tunnel).
 - `utility_critical_points`  Point per pipe and check where its demand is greatest (CRITICAL_POINT_FIELDS).
 - `face_stations`     Point per face-check station (settle.face_stations): drive, chainage_m, cover_m,
                       water_pressure_kpa, support_min_kpa, blowout_kpa, support_max_kpa, window_kpa, status, and more.
-                      With it the `route` layer gains face_min_window_kpa, face_min_window_chainage_m,
+                      `status_class`: 0 open, 1 narrow, 2 closed. With it the `route` layer gains face_min_window_kpa, face_min_window_chainage_m,
                       face_closed_stations, face_narrow_stations, face_low_cover_stations.
 
 Values are float64 as computed; nothing is rounded. Each frame declares its layer geometry type in
@@ -140,10 +142,19 @@ def face_frame(all_stations, crs: str) -> gpd.GeoDataFrame:
     """The face stations of every drive: points on the axis in plan, fields of `face_station_fields`."""
     from settle.face_stations import face_station_fields
 
+    from settle.face_stations import STATUSES
+
     parts = [pd.DataFrame(face_station_fields(st)) for st in all_stations]
     columns = pd.concat(parts, ignore_index=True)
+    columns["status_class"] = _status_class(columns["status"], STATUSES)
     xy = np.concatenate([np.column_stack([st.x_m, st.y_m]) for st in all_stations])
     return _frame({k: columns[k].to_numpy() for k in columns}, shapely.points(xy), crs, "face_stations")
+
+
+def _status_class(status, vocabulary) -> np.ndarray:
+    """Integer class of each status word: its place in the vocabulary (0 = best), for exact styling."""
+    index = {word: k for k, word in enumerate(vocabulary)}
+    return np.array([index[s] for s in status], dtype=np.int64)
 
 
 def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFrame:
@@ -193,8 +204,11 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     if result.utilities is not None:
         from settle.pipelines import CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows, utility_rows
 
+        from settle.pipelines import STATUSES as PIPE_STATUSES
+
         pipes = project.utilities
         layers["utilities"] = rows_frame(utility_rows(pipes, result.utilities), UTILITY_FIELDS, crs, "utilities")
+        layers["utilities"]["status_class"] = _status_class(layers["utilities"]["status"], PIPE_STATUSES)
         layers["utility_critical_points"] = rows_frame(critical_point_rows(pipes, result.utilities),
                                                        CRITICAL_POINT_FIELDS, crs, "utility_critical_points")
     if result.face:
