@@ -113,6 +113,7 @@ def main():
             px, py = _set_out(route, ch, off)
             f.write(f"{pid},{X0 + px:.2f},{Y0 + py:.2f},{d}\n")
     write_utilities(main_xy, cable_xy)
+    write_buildings(main_xy, cable_xy)
 
 
 def _line_across(route, chainage, half_length, angle_deg, n=21):
@@ -153,6 +154,58 @@ def write_utilities(main_xy, cable_xy):
                   "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::25832"}},
                   "features": features}
     (HERE / "utilities.geojson").write_text(json.dumps(collection, indent=1) + "\n")
+
+
+def _rectangle(cx, cy, along, across, heading):
+    """Corners of a rectangle centred at (cx, cy), `along` metres in the direction `heading` (rad)."""
+    c, s = np.cos(heading), np.sin(heading)
+    u = np.array([[-0.5, -0.5], [0.5, -0.5], [0.5, 0.5], [-0.5, 0.5]]) * [along, across]
+    return [[cx + a * c - b * s, cy + a * s + b * c] for a, b in u]
+
+
+def write_buildings(main_xy, cable_xy):
+    """Invented buildings: two terraces facing each other along Tanner's Walk, where it crosses the water main, and
+    a few detached buildings of other sizes and orientations near the brook and the cable tunnel."""
+    rng = np.random.default_rng(20261201)  # fixed: the demo is the same every time
+    x0, y0 = _set_out(main_xy, 120.0, 0.0)
+    x1, y1 = _set_out(main_xy, 121.0, 0.0)
+    street = np.arctan2(y1 - y0, x1 - x0) + np.radians(80.0)  # the street's direction
+    normal = street + np.pi / 2
+    features = []
+    for side in (-1, 1):
+        for k, t in enumerate(np.arange(-42.0, 43.0, 8.0)):
+            depth = rng.uniform(9.0, 12.0)
+            cx = x0 + t * np.cos(street) + side * (4.5 + depth / 2) * np.cos(normal)
+            cy = y0 + t * np.sin(street) + side * (4.5 + depth / 2) * np.sin(normal)
+            number = 2 * k + (1 if side < 0 else 2)
+            features.append((f"TW {number}", _rectangle(cx, cy, 7.6, depth, street),
+                             {"height_m": round(float(rng.uniform(6.5, 10.0)), 1), "structure": "masonry",
+                              "foundation_depth_m": 0.9, "use": "terraced house"}))
+    others = [
+        ("Old Mill", main_xy, 275.0, -14.0, 24.0, 12.0, 35.0, 11.0, "masonry", 1.2, "offices"),
+        ("Brook Lodge", main_xy, 318.0, 9.0, 10.0, 8.0, -20.0, 6.0, "masonry", 0.8, "house"),
+        ("Meadow Depot", main_xy, 200.0, 6.0, 30.0, 15.0, 0.0, 7.5, "frame", 1.5, "warehouse"),
+        ("Kiln Yard Store", main_xy, 30.0, -7.0, 12.0, 9.0, 60.0, 5.0, "masonry", 0.7, "store"),
+        ("Rope Street Hall", cable_xy, 92.0, 4.0, 18.0, 11.0, 15.0, 9.0, "frame", 1.0, "hall"),
+        ("Ferry Cottage", main_xy, 380.0, 40.0, 9.0, 7.0, 10.0, 6.0, None, None, "house"),
+    ]
+    for name, route, ch, off, along, across, turn, height, structure, foundation, use in others:
+        cx, cy = _set_out(route, ch, off)
+        xa, ya = _set_out(route, ch + 1.0, off)
+        heading = np.arctan2(ya - cy, xa - cx) + np.radians(turn)
+        props = {"height_m": height, "use": use}
+        if structure:
+            props["structure"] = structure
+        if foundation is not None:
+            props["foundation_depth_m"] = foundation
+        features.append((name, _rectangle(cx, cy, along, across, heading), props))
+    collection = {"type": "FeatureCollection",
+                  "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::25832"}},
+                  "features": [{"type": "Feature", "properties": {"id": name, **props}, "geometry": {
+                      "type": "Polygon",
+                      "coordinates": [[[round(X0 + a, 3), round(Y0 + b, 3)] for a, b in ring + ring[:1]]]}}
+                      for name, ring, props in features]}
+    (HERE / "buildings.geojson").write_text(json.dumps(collection, indent=1) + "\n")
 
 
 def _set_out(xy, chainage, offset):

@@ -11,6 +11,10 @@ Layers and fields (the names are part of the output format; GIS projects refer t
                       reporting points.
 - `settlement_bands`  MultiPolygon per band: band, lower_mm, upper_mm (see `gis_out.contours.settlement_bands`).
 - `settlement_lines`  MultiLineString per level: level_mm.
+- `buildings`         MultiPolygon per building (settle.buildings.building_columns): its input attributes, then
+                      max_settlement_mm, max_tilt, screened_out, deflection_ratio, horizontal_strain_pct,
+                      tensile_strain_pct, category, category_label, governing_wall, and more.
+- `building_walls`    LineString per wall assessed at stage 2 (settle.buildings.wall_columns).
 - `utilities`         LineString per buried pipe (settle.pipelines.UTILITY_FIELDS): demands, allowables, verdict;
                       `status_class` is the status as an integer (0 within limits, 1 near limit, 2 exceeds,
                       3 not checked, 4 crosses the tunnel).
@@ -42,6 +46,8 @@ GEOMETRY_TYPES = {
     "settlement_bands": "MultiPolygon",
     "settlement_lines": "MultiLineString",
     "face_stations": "Point",
+    "buildings": "MultiPolygon",
+    "building_walls": "LineString",
     "utilities": "LineString",
     "utility_critical_points": "Point",
 }
@@ -201,6 +207,13 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     levels = project.output.contour_levels_mm
     layers["settlement_bands"] = bands_frame(settlement_bands(result.tiles, levels, levels_where), crs)
     layers["settlement_lines"] = lines_frame(settlement_lines(result.tiles, levels, levels_where), crs)
+    if result.buildings is not None:
+        from settle.buildings import building_columns, wall_columns
+
+        for name, columns in (("buildings", building_columns(project.buildings, result.buildings)),
+                              ("building_walls", wall_columns(project.buildings, result.buildings))):
+            geometry = columns.pop("geometry")
+            layers[name] = _frame(columns, geometry, crs, name)
     if result.utilities is not None:
         from settle.pipelines import CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows, utility_rows
 

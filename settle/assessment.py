@@ -1,6 +1,6 @@
 """The orchestrator: the engineer's procedure, step by step.
 
-    result = Assessment(project).greenfield().utilities().face().result
+    result = Assessment(project).greenfield().buildings().utilities().face().result
 
 Each step can be run and tested alone; the numbers come from the model functions in `troughs`, superposed by
 `field`, on the geometry of `route`.
@@ -34,6 +34,7 @@ class Assessment:
         self._result: Result | None = None
         self._face: list = []
         self._utilities = None
+        self._buildings = None
 
     def _timed(self, name, started):
         self.timings[name] = time.perf_counter() - started
@@ -92,7 +93,22 @@ class Assessment:
             timings_s=self.timings,
             face=self._face,
             utilities=self._utilities,
+            buildings=self._buildings,
         )
+        return self
+
+    def buildings(self) -> "Assessment":
+        """Stage 1 screening and stage 2 deep-beam damage categories of every building in [buildings]."""
+        p = self.project
+        if p.buildings is None:
+            return self
+        from .buildings import assess_buildings
+
+        t = time.perf_counter()
+        self._buildings = assess_buildings(p.buildings, self.movements_at, p.building_options)
+        self._timed("buildings", t)
+        if self._result is not None:
+            self._result.buildings = self._buildings
         return self
 
     def utilities(self) -> "Assessment":
@@ -151,4 +167,4 @@ def run(project: Project | str | Path, progress=None) -> Result:
         from .project import load_project
 
         project = load_project(project)
-    return Assessment(project, progress).greenfield().utilities().face().result
+    return Assessment(project, progress).greenfield().buildings().utilities().face().result

@@ -86,6 +86,11 @@ def _run(args) -> int:
     summary_path = out / "summary.json"
     gis_out.write_geopackage(gpkg, gis_out.frames(result))
     outputs = {"geopackage": gpkg.name, "summary": summary_path.name}
+    if result.buildings is not None:
+        from .buildings import report_rows
+
+        rows = report_rows(result.project.buildings, result.buildings)
+        outputs["buildings_table"] = _write_rows_csv(out / "buildings.csv", rows)
     if result.utilities is not None:
         outputs["utilities_table"] = _write_rows_csv(out / "utilities.csv", _utility_table(result))
     if result.face:

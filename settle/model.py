@@ -113,6 +113,9 @@ class Project:
     strengths: tuple = ()
     rivers: tuple = ()  # settle.face_stations.River items
     face: object | None = None  # settle.face_stations.FaceOptions; None = the documented defaults
+    # Buildings (settle.buildings): footprints read from [buildings] file, and the assessment's settings.
+    buildings: object | None = None  # settle.footprints.Buildings
+    building_options: object | None = None  # settle.buildings.AssessmentOptions
     # Buried utilities (settle.pipelines): the lines read from [utilities] file, and the assessment's settings.
     utilities: object | None = None  # settle.utility_lines.Utilities
     utility_options: object | None = None  # settle.pipelines.UtilityOptions

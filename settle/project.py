@@ -91,6 +91,8 @@ from pathlib import Path
 import pyproj
 
 from .errors import InputError
+from .buildings import STIFFNESS_METHODS, AssessmentOptions
+from .footprints import DEFAULT_E_OVER_G, MODIFICATION_ATTRIBUTES, BuildingDefaults, read_buildings
 from .pipelines import UtilityOptions
 from .utility_lines import VERTICALS as UTILITY_VERTICALS
 from .utility_lines import UtilityReadOptions, read_utilities
@@ -100,7 +102,7 @@ from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output
 from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,
                      read_surface_points, shown)
 
-TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities")
+TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
@@ -113,6 +115,11 @@ REACH_KEYS = ("from_chainage_m", "to_chainage_m", "volume_loss_pct", "trough_wid
 SUPPORT_KEYS = ("from_chainage_m", "to_chainage_m", "mode")
 RIVER_KEYS = ("name", "drive", "from_chainage_m", "to_chainage_m", "bed_level_m", "water_level_m")
 FACE_KEYS = tuple(f.name for f in dataclasses.fields(FaceOptions))
+BUILDING_READ_KEYS = ("layer", "id_attribute", "height_attribute", "foundation_depth_attribute", "structure_attribute",
+                      "default_height_m", "default_foundation_depth_m", "default_structure", "e_over_g")
+BUILDING_KEYS = ("file",) + BUILDING_READ_KEYS + (
+    "poisson_ratio", "screening_slope_limit", "screening_settlement_limit_mm", "interior_spacing_m",
+    "stiffness_correction") + MODIFICATION_ATTRIBUTES
 UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
 OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm")
@@ -163,9 +170,10 @@ def load_project(path) -> Project:
     output = _output(_table(doc, "output", name), f"{name} [output]")
     strengths, rivers, face = _face_inputs(doc, name, ground, drives)
     utilities, utility_options = _utilities(doc, name, path.parent, crs, ground, warnings)
+    buildings, building_options = _buildings(doc, name, path.parent, crs, warnings)
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
                    warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face, utilities=utilities,
-                   utility_options=utility_options)
+                   utility_options=utility_options, buildings=buildings, building_options=building_options)
 
 
 # ------------------------------------------------------------------------------------------------ generic helpers
@@ -564,3 +572,44 @@ def _utilities(doc: dict, file: str, folder: Path, crs: str, ground: Ground, war
                                     default=defaults.near_limit_fraction, gt=0.0, lt=1.0),
         key=where)
     return utilities, options
+
+
+# ----------------------------------------------------------------------------------------------------- buildings
+def _buildings(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]):
+    """[buildings]: the footprints to assess and the assessment's settings; (None, None) when absent."""
+    if "buildings" not in doc:
+        return None, None
+    where = f"{file} [buildings]"
+    table = _table(doc, "buildings", file)
+    _check_keys(table, BUILDING_KEYS, where)
+    e_over_g = dict(DEFAULT_E_OVER_G)
+    if "e_over_g" in table:
+        types = _table(table, "e_over_g", where)
+        for name in types:
+            e_over_g[name.lower()] = _number(types, name, f"{where} e_over_g", gt=0.0)
+    text = {k: _text(table, k, where, required=False) for k in ("layer", "id_attribute", "height_attribute",
+                                                                "foundation_depth_attribute", "structure_attribute")}
+    defaults = BuildingDefaults(
+        **{k: v for k, v in text.items() if v is not None},
+        default_height_m=_number(table, "default_height_m", where, required=False, gt=0.0),
+        default_foundation_depth_m=_number(table, "default_foundation_depth_m", where, required=False, ge=0.0),
+        default_structure=_text(table, "default_structure", where, required=False),
+        e_over_g=e_over_g)
+    base = AssessmentOptions()
+    options = AssessmentOptions(
+        poisson_ratio=_number(table, "poisson_ratio", where, required=False, default=base.poisson_ratio,
+                              ge=0.0, lt=0.5),
+        screening_slope_limit=_number(table, "screening_slope_limit", where, required=False,
+                                      default=base.screening_slope_limit, gt=0.0),
+        screening_settlement_limit_mm=_number(table, "screening_settlement_limit_mm", where, required=False,
+                                              default=base.screening_settlement_limit_mm, gt=0.0),
+        interior_spacing_m=_number(table, "interior_spacing_m", where, required=False,
+                                   default=base.interior_spacing_m, gt=0.0),
+        stiffness_correction=_text(table, "stiffness_correction", where, required=False, default="none",
+                                   choices=tuple(STIFFNESS_METHODS)),
+        modification_factors={k: _number(table, k, where, ge=0.0) for k in MODIFICATION_ATTRIBUTES if k in table},
+        key_prefix=where)
+    options.check()
+    buildings = read_buildings(_path(table, "file", where, folder), crs, defaults, where)
+    warnings.extend(buildings.notes())
+    return buildings, options

@@ -129,6 +129,7 @@ class Result:
     timings_s: dict[str, float] = field(default_factory=dict)
     face: list = field(default_factory=list)  # settle.face_stations.FaceStations per drive, when the check ran
     utilities: object | None = None  # settle.pipelines.UtilityResults, when the project has [utilities]
+    buildings: object | None = None  # settle.buildings.BuildingResults, when the project has [buildings]
 
     @property
     def lost_volume_m3(self) -> float:

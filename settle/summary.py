@@ -88,6 +88,10 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
         }
     if summary["max_compressive_strain"]:  # reported as a signed (negative) strain
         summary["max_compressive_strain"]["strain_ue"] *= -1
+    if result.buildings is not None:
+        from .buildings import category_counts
+
+        summary["buildings"] = category_counts(p.buildings, result.buildings)
     if result.utilities is not None:
         from .pipelines import status_counts
 

@@ -51,7 +51,7 @@ def shown(value) -> str:
     return str(value)
 
 
-def _listing(names, limit: int = 20) -> str:
+def listing(names, limit: int = 20) -> str:
     """Comma-separated quoted names, cut after `limit`."""
     names = [shown(str(n)) for n in names]
     more = f", ... ({len(names) - limit} more)" if len(names) > limit else ""
@@ -87,7 +87,7 @@ class CsvTable:
                 if len(self.header) == 1 and ";" in self.header[0]:
                     hint = " (the header seems to use ';' between columns; the file must use ',')"
                 raise InputError(f"{self.path}: missing column {shown(name)}; columns found: "
-                                 f"{_listing(self.header) or 'none'}{hint}")
+                                 f"{listing(self.header) or 'none'}{hint}")
 
     def texts(self, name: str) -> tuple[str, ...]:
         """Column `name` as text; an empty cell is an error naming the row."""
@@ -264,7 +264,7 @@ def read_alignment_csv(path) -> Alignment:
         problem = "none of" if not given else f"{len(given)} of"
         raise InputError(f"{path}: needs exactly one vertical column, z (axis level), invert_z (invert level) or "
                          f"depth_m (axis depth below the surface); found {problem} them; columns found: "
-                         f"{_listing(table.header)}")
+                         f"{listing(table.header)}")
     xy = np.column_stack([table.numbers("x"), table.numbers("y")])
     v = table.numbers(given[0])
     vertical = CSV_VERTICAL_COLUMNS[given[0]]
@@ -272,7 +272,7 @@ def read_alignment_csv(path) -> Alignment:
     return Alignment(xy=xy, v=v, vertical=vertical, source=str(path))
 
 
-def _choose_layer(path: Path, layer: str | None, layer_key: str) -> str:
+def choose_layer(path: Path, layer: str | None, layer_key: str) -> str:
     """The layer to read: the one named, or the only layer with geometry."""
     try:
         listed = pyogrio.list_layers(path)
@@ -281,11 +281,11 @@ def _choose_layer(path: Path, layer: str | None, layer_key: str) -> str:
     names = [str(name) for name, _ in listed]
     if layer is not None:
         if layer not in names:
-            raise InputError(f"{path}: no layer {shown(layer)} ({layer_key}); layers found: {_listing(names)}")
+            raise InputError(f"{path}: no layer {shown(layer)} ({layer_key}); layers found: {listing(names)}")
         return layer
     spatial = [str(name) for name, geometry in listed if geometry is not None]
     if len(spatial) != 1:
-        raise InputError(f"{path}: holds {len(spatial)} layers with geometry ({_listing(spatial)}); "
+        raise InputError(f"{path}: holds {len(spatial)} layers with geometry ({listing(spatial)}); "
                          f"choose one with {layer_key}")
     return spatial[0]
 
@@ -295,18 +295,18 @@ def _choose_feature(frame, source: str, feature: str | None, feature_key: str):
     names = [str(n) for n in frame["name"]] if "name" in frame.columns else None
     if feature is None:
         if len(frame) != 1:
-            found = f"names found: {_listing(names)}" if names else "the layer has no name attribute"
+            found = f"names found: {listing(names)}" if names else "the layer has no name attribute"
             raise InputError(f"{source}: holds {len(frame)} features; choose one with {feature_key} "
                              f"(the value of its name attribute); {found}")
         return frame.geometry.iloc[0]
     if names is None:
         raise InputError(f"{source}: {feature_key} = {shown(feature)} but the layer has no name attribute; "
-                         f"attributes found: {_listing(c for c in frame.columns if c != 'geometry') or 'none'}")
+                         f"attributes found: {listing(c for c in frame.columns if c != 'geometry') or 'none'}")
     hits = [i for i, n in enumerate(names) if n == feature]
     if len(hits) != 1:
         problem = "no feature is" if not hits else f"{len(hits)} features are"
         raise InputError(f"{source}: {problem} named {shown(feature)} ({feature_key}); names found: "
-                         f"{_listing(names)}")
+                         f"{listing(names)}")
     return frame.geometry.iloc[hits[0]]
 
 
@@ -326,7 +326,7 @@ def _line_coordinates(geometry, source: str) -> np.ndarray:
     return shapely.get_coordinates(geometry, include_z=True)
 
 
-def _transformation_notes(source_crs, target_crs, source: str) -> list[str]:
+def transformation_notes(source_crs, target_crs, source: str) -> list[str]:
     """A warning when PROJ lacks the best transformation between the CRSs (e.g. a missing datum grid), with the
     accuracy of the one it will use [m] as PROJ's database states it."""
     with python_warnings.catch_warnings():
@@ -356,7 +356,7 @@ def read_alignment_gis(path, project_crs: str, z_means: str = "axis", layer: str
     layer_key, feature_key : str  Project-file keys named in messages.
     """
     path = Path(path)
-    chosen = _choose_layer(path, layer, layer_key)
+    chosen = choose_layer(path, layer, layer_key)
     source = f"{path} layer {shown(chosen)}"
     try:
         frame = pyogrio.read_dataframe(path, layer=chosen)
@@ -377,7 +377,7 @@ def read_alignment_gis(path, project_crs: str, z_means: str = "axis", layer: str
     if frame.crs is None:
         notes.append(f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}")
     elif not frame.crs.equals(target, ignore_axis_order=True):
-        notes.extend(_transformation_notes(frame.crs, target, source))
+        notes.extend(transformation_notes(frame.crs, target, source))
         try:
             transformer = pyproj.Transformer.from_crs(frame.crs, target, always_xy=True)
             x, y = transformer.transform(xyz[:, 0], xyz[:, 1])

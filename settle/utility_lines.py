@@ -47,7 +47,7 @@ import pyproj
 import shapely
 
 from .errors import InputError
-from .tables import GIS_SUFFIXES, PLAN_TOLERANCE_M, _choose_layer, _listing, _transformation_notes, shown
+from .tables import GIS_SUFFIXES, PLAN_TOLERANCE_M, choose_layer, listing, transformation_notes, shown
 
 VERTICALS = ("depth", "axis")  # depth_m attribute | Z is the pipe axis level
 SUFFIXES = tuple(s for s in GIS_SUFFIXES if s != ".shp")  # shapefiles cut attribute names to 10 characters
@@ -215,7 +215,7 @@ def make_utilities(ids, materials, lines_xy, depths_m, outer_diameter_mm, segmen
     for k, m in enumerate(materials):
         if m not in MATERIAL_LIMITS:
             raise InputError(f"{labels[k]}: material {shown(m)} is not known; known materials: "
-                             f"{_listing(MATERIALS)}{_closest(str(m))}")
+                             f"{listing(MATERIALS)}{_closest(str(m))}")
     od = np.asarray(outer_diameter_mm, dtype=float).reshape(n)
     lo, hi = DIAMETER_RANGE_MM
     bad = ~((od >= lo) & (od <= hi))
@@ -370,7 +370,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
     path = Path(path)
     key = options.key
     if options.vertical not in VERTICALS:
-        raise InputError(f"{key} vertical must be one of {_listing(VERTICALS)}; got {shown(options.vertical)}")
+        raise InputError(f"{key} vertical must be one of {listing(VERTICALS)}; got {shown(options.vertical)}")
     if path.suffix.lower() == ".shp":
         raise InputError(f"{key} file: {path} is a shapefile, which cuts attribute names such as outer_diameter_mm "
                          f"to 10 characters; save the layer as GeoPackage (.gpkg) or GeoJSON")
@@ -378,7 +378,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
         raise InputError(f"{key} file: {path} is not a GIS line file; give one of {', '.join(SUFFIXES)}")
     if not path.exists():
         raise InputError(f"{key} file: {path} does not exist")
-    chosen = _choose_layer(path, options.layer, f"{key} layer")
+    chosen = choose_layer(path, options.layer, f"{key} layer")
     source = f"{path} layer {shown(chosen)}"
     try:
         frame = pyogrio.read_dataframe(path, layer=chosen, fid_as_index=True)
@@ -394,7 +394,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
             if name == "depth_m" and frame.geometry.has_z.any():
                 hint = f' (the lines have Z: if Z is the level of the pipe axis, set {key} vertical = "axis")'
             raise InputError(f"{source}: missing attribute {shown(name)}; attributes found: "
-                             f"{_listing(columns) or 'none'}{hint}")
+                             f"{listing(columns) or 'none'}{hint}")
     if options.vertical == "axis" and options.surface_level is None:
         raise ValueError("read_utilities: vertical = 'axis' needs options.surface_level")
 
@@ -404,7 +404,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
     if frame.crs is None:
         notes.append(f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}")
     elif not frame.crs.equals(target, ignore_axis_order=True):
-        notes.extend(_transformation_notes(frame.crs, target, source))
+        notes.extend(transformation_notes(frame.crs, target, source))
         try:
             with python_warnings.catch_warnings():
                 python_warnings.simplefilter("ignore")
@@ -424,7 +424,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
         label = f"{source} pipe {shown(pid)}"
         material = _text_cell(cells["material"])
         if material is None:
-            raise InputError(f"{label}: material is empty; known materials: {_listing(MATERIALS)}")
+            raise InputError(f"{label}: material is empty; known materials: {listing(MATERIALS)}")
         for name in numbers:
             value = _number_cell(cells.get(name), label, name) if name in cells else math.nan
             if name == "outer_diameter_mm" and math.isnan(value):

@@ -32,7 +32,8 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
     assert done.returncode == 0, done.stderr
     gpkg = out / "ostrey.gpkg"
     assert sorted(fiona.listlayers(gpkg)) == sorted(["route", "grid", "settlement_bands", "settlement_lines", "points",
-                                                     "face_stations", "utilities", "utility_critical_points"])
+                                                     "face_stations", "utilities", "utility_critical_points",
+                                                     "buildings", "building_walls"])
     fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
     assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
     assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
@@ -76,6 +77,25 @@ def test_demo_utilities(demo_run):
     table = (out / "utilities.csv").read_text().splitlines()
     assert "qualified engineer" in table[0] and table[1].startswith("id,material,")
     assert len(table) == 2 + 5
+
+
+def test_demo_buildings_show_several_categories(demo_run):
+    _, out = demo_run
+    with fiona.open(out / "ostrey.gpkg", layer="buildings") as layer:
+        fields = set(layer.schema["properties"])
+        assert {"max_settlement_mm", "max_tilt", "screened_out", "deflection_ratio", "horizontal_strain_pct",
+                "tensile_strain_pct", "category", "category_label", "governing_wall"} <= fields
+        assert {"height_m", "use"} <= fields  # the input attributes are carried
+        categories = [f["properties"]["category"] for f in layer]
+    with fiona.open(out / "ostrey.gpkg", layer="building_walls") as walls:
+        assert len(walls) > 0
+    summary = json.loads((out / "summary.json").read_text())["buildings"]
+    assert summary["buildings"] == len(categories) == 28
+    counts = {c: categories.count(int(c)) for c in summary["by_category"]}
+    assert counts == summary["by_category"]
+    assert sum(1 for n in counts.values() if n) >= 3  # the demo shows several categories (issue 3)
+    table = (out / "buildings.csv").read_text().splitlines()
+    assert "qualified engineer" in table[0] and len(table) == 2 + 28
 
 
 def test_demo_summary(demo_run):
@@ -123,7 +143,7 @@ def _broken_copy(tmp_path, old, new):
     [
         ("outer_diameter_m = 2.0", 'outer_diameter_m = "2,0"', r'outer_diameter_m .*got "2,0"'),
         ('crs = "EPSG:25832"', 'crs = "EPSG:4326"', r"crs .*not projected"),
-        ("volume_loss_pct = 1.0\n", "volume_loss = 1.0\n", r'unknown key "volume_loss"; did you mean "volume_loss_pct"'),
+        ("volume_loss_pct = 0.8\n", "volume_loss = 0.8\n", r'unknown key "volume_loss"; did you mean "volume_loss_pct"'),
         ("inner_diameter_m = 1.6\n", "inner_diameter_m = 1.6\nface_chainage_m = 900.0\n",
          r"face_chainage_m = 900 is outside the drive"),
     ],
