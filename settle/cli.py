@@ -101,13 +101,9 @@ def _run(args) -> int:
     if not args.quiet:
         for warning in result.warnings:
             print(f"warning: {warning}", file=sys.stderr)
-        peak = summary["max_settlement"]
-        if peak:
-            print(
-                f"max settlement {peak['settlement_mm']:.1f} mm at x={peak['x_m']:.1f}, y={peak['y_m']:.1f}; "
-                f"{len(result.grid)} grid nodes of {summary['grid']['threshold_mm']:g} mm or more"
-            )
-        print(f"wrote {gpkg} and {summary_path}")
+        from .terminal import summary_table
+
+        print(summary_table(summary, out))
     return 0
 
 

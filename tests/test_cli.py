@@ -195,3 +195,16 @@ def test_progress_only_on_a_terminal(capsys):
 def test_piped_run_prints_no_progress(demo_run):
     done, _ = demo_run
     assert "\r" not in done.stderr and "%" not in done.stderr
+
+
+def test_terminal_summary_table(demo_run):
+    done, out = demo_run
+    summary = json.loads((out / "summary.json").read_text())
+    lines = done.stdout.strip().splitlines()
+    table = dict(line.split("  ", 1) for line in lines)
+    table = {k.strip(): v.strip() for k, v in table.items()}
+    assert table["max settlement"].startswith(f"{summary['max_settlement']['settlement_mm']:.1f} mm")
+    assert table["buildings by category"].startswith(", ".join(
+        f"{c}: {n}" for c, n in summary["buildings"]["by_category"].items()))
+    assert "exceeds" in table["utilities by status"]
+    assert "smallest" in table["face support window"] and "ostrey.gpkg" in table["outputs"]
