@@ -86,6 +86,11 @@ def _run(args) -> int:
     summary_path = out / "summary.json"
     gis_out.write_geopackage(gpkg, gis_out.frames(result))
     outputs = {"geopackage": gpkg.name, "summary": summary_path.name}
+    if result.project.output.settlement_geotiff:
+        from gis_out.raster import write_settlement_geotiff
+
+        tif = write_settlement_geotiff(result.tiles, result.project.crs, out / f"{stem}-settlement.tif")
+        outputs["settlement_geotiff"] = tif.name
     if result.buildings is not None:
         from .buildings import report_rows
 

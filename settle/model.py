@@ -98,6 +98,7 @@ class Output:
     contour_levels_mm: tuple[float, ...]
     grid_threshold_mm: float = 0.1  # grid keeps every node whose settlement reaches this
     precision_mm: float = 0.001  # contributions smaller than this are not evaluated (see DEVELOPERS.md)
+    settlement_geotiff: bool = False  # also write <stem>-settlement.tif (needs the raster extra)
 
 
 @dataclass(frozen=True)

@@ -83,6 +83,7 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
+import importlib.util
 import math
 import re
 import tomllib
@@ -122,7 +123,7 @@ BUILDING_KEYS = ("file",) + BUILDING_READ_KEYS + (
     "stiffness_correction") + MODIFICATION_ATTRIBUTES
 UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
-OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm")
+OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm", "settlement_geotiff")
 
 K_RANGE = dict(ge=0.1, le=1.5)  # trough width factor K [-]
 VOLUME_LOSS_RANGE = dict(gt=0.0, le=20.0)  # [%]
@@ -449,8 +450,14 @@ def _output(table: dict, where: str) -> Output:
     if not precision < threshold:
         raise InputError(f"{where}: precision_mm must be less than grid_threshold_mm ({threshold:g} mm); "
                          f"got {precision:g}")
+    geotiff = table.get("settlement_geotiff", False)
+    if not isinstance(geotiff, bool):
+        raise InputError(f"{where}: settlement_geotiff must be true or false; got {shown(geotiff)}")
+    if geotiff and importlib.util.find_spec("rasterio") is None:
+        raise InputError(f'{where}: settlement_geotiff = true needs rasterio; install it with pip install -e ".[raster]" '
+                         "or set settlement_geotiff = false")
     return Output(grid_spacing_m=spacing, contour_levels_mm=levels, grid_threshold_mm=threshold,
-                  precision_mm=precision)
+                  precision_mm=precision, settlement_geotiff=geotiff)
 
 
 def _levels(table: dict, key: str, where: str) -> tuple[float, ...]:
