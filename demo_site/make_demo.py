@@ -114,6 +114,7 @@ def main():
             f.write(f"{pid},{X0 + px:.2f},{Y0 + py:.2f},{d}\n")
     write_utilities(main_xy, cable_xy)
     write_buildings(main_xy, cable_xy)
+    write_readings(cable_xy)
 
 
 def _line_across(route, chainage, half_length, angle_deg, n=21):
@@ -142,7 +143,9 @@ def write_utilities(main_xy, cable_xy):
           "allowable_joint_opening_mm": 10.0}),  # sewer; the owner's limits (invented for the demo)
         ("DI-OM-4", "ductile_iron", 250.0, 1.3, 5.5, _line_across(main_xy, 410.0, 30.0, 95.0),
          {"allowable_joint_opening_mm": 15.0}),
-        ("ST-RS-5", "steel", 406.0, 1.6, None, _line_across(cable_xy, 80.0, 30.0, 70.0), {}),  # near the face
+        ("ST-RS-5", "steel", 406.0, 1.6, None, _line_across(cable_xy, 112.0, 30.0, 70.0), {}),  # ahead of the face
+        ("CI-RS-6", "cast_iron", 250.0, 1.0, 3.66, _line_across(cable_xy, 128.0, 25.0, 85.0),
+         {"allowable_joint_opening_mm": 5.0}),
     ]
     features = []
     for pid, material, od, depth, length, line, extra in pipes:
@@ -186,7 +189,8 @@ def write_buildings(main_xy, cable_xy):
         ("Brook Lodge", main_xy, 318.0, 9.0, 10.0, 8.0, -20.0, 6.0, "masonry", 0.8, "house"),
         ("Meadow Depot", main_xy, 200.0, 6.0, 30.0, 15.0, 0.0, 7.5, "frame", 1.5, "warehouse"),
         ("Kiln Yard Store", main_xy, 30.0, -7.0, 12.0, 9.0, 60.0, 5.0, "masonry", 0.7, "store"),
-        ("Rope Street Hall", cable_xy, 92.0, 4.0, 18.0, 11.0, 15.0, 9.0, "frame", 1.0, "hall"),
+        ("Rope Street Hall", cable_xy, 118.0, 4.0, 18.0, 11.0, 15.0, 9.0, "frame", 1.0, "hall"),
+        ("Rope Street 2", cable_xy, 136.0, -3.0, 8.0, 10.0, 90.0, 8.0, "masonry", 0.8, "house"),
         ("Ferry Cottage", main_xy, 380.0, 40.0, 9.0, 7.0, 10.0, 6.0, None, None, "house"),
     ]
     for name, route, ch, off, along, across, turn, height, structure, foundation, use in others:
@@ -206,6 +210,53 @@ def write_buildings(main_xy, cable_xy):
                       "coordinates": [[[round(X0 + a, 3), round(Y0 + b, 3)] for a, b in ring + ring[:1]]]}}
                       for name, ring, props in features]}
     (HERE / "buildings.geojson").write_text(json.dumps(collection, indent=1) + "\n")
+
+
+def write_readings(cable_xy):
+    """Invented monitoring of the cable tunnel under construction: two arrays of surface points across it, read each
+    day as the face advanced 5 m a day to chainage 95 m. The readings are made with the engine from a "true" volume
+    loss of 1.2 % and K of 0.42 (the design says 0.8 % and the layers' K), plus 0.3 mm of levelling noise and two
+    misread staff readings, so that `settle fit` has something to find. Synthetic data for the demo only."""
+    import sys
+
+    sys.path.insert(0, str(HERE.parent))
+    from settle.fitting import drive_with_values, predicted_settlement_mm
+    from settle.project import load_project
+    from settle.readings import Readings
+
+    project = load_project(HERE / "ostrey.toml")
+    index = [d.name for d in project.drives].index("Osier Meadow to Rope Street cable tunnel")
+    truth = replace_drive(project, index, drive_with_values(project.drives[index], {None: (1.2, 0.42)}))
+    rng = np.random.default_rng(1201)
+    places = [(f"CT{ch:.0f}-{'L' if off > 0 else 'R' if off < 0 else 'C'}{abs(off):.0f}", *_set_out(cable_xy, ch, off))
+              for ch in (30.0, 60.0) for off in (-9.0, -6.0, -3.0, 0.0, 3.0, 6.0, 9.0)]
+    rows = []
+    start = np.datetime64("2026-11-02T07:30:00")
+    for day, face in enumerate(np.arange(10.0, 95.01, 5.0)):
+        n = len(places)
+        where = Readings(point_id=np.array([p[0] for p in places], dtype=object),
+                         x_m=X0 + np.array([p[1] for p in places]), y_m=Y0 + np.array([p[2] for p in places]),
+                         depth_m=np.zeros(n), date=np.full(n, start + np.timedelta64(day, "D")),
+                         settlement_mm=np.zeros(n), face_chainage_m=np.full(n, face), drive=np.full(n, index),
+                         line=np.zeros(n, dtype=int), drive_names=tuple(d.name for d in project.drives))
+        true_mm = predicted_settlement_mm(truth, where)
+        read = true_mm + rng.normal(0.0, 0.3, n)
+        for k, (pid, px, py) in enumerate(places):
+            rows.append((pid, X0 + px, Y0 + py, str(start + np.timedelta64(day, "D")) + "Z", read[k], face))
+    rows[150] = rows[150][:4] + (rows[150][4] + 10.0,) + rows[150][5:]  # a misread staff: 10 mm off
+    rows[201] = rows[201][:4] + (rows[201][4] - 8.0,) + rows[201][5:]
+    with open(HERE / "cable_tunnel_readings.csv", "w") as f:
+        f.write("point_id,drive,x,y,date,settlement_mm,face_chainage_m\n")
+        for pid, px, py, date, value, face in rows:
+            f.write(f"{pid},Osier Meadow to Rope Street cable tunnel,{px:.2f},{py:.2f},{date},{value:.2f},{face:.1f}\n")
+
+
+def replace_drive(project, index, drive):
+    from dataclasses import replace
+
+    drives = list(project.drives)
+    drives[index] = drive
+    return replace(project, drives=tuple(drives))
 
 
 def _set_out(xy, chainage, offset):

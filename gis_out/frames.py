@@ -48,6 +48,7 @@ GEOMETRY_TYPES = {
     "face_stations": "Point",
     "buildings": "MultiPolygon",
     "building_walls": "LineString",
+    "readings": "Point",
     "utilities": "LineString",
     "utility_critical_points": "Point",
 }
@@ -171,6 +172,20 @@ def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFram
     for name in summaries:
         route[name] = summaries[name].to_numpy()
     return route
+
+
+def readings_frame(comparison, crs: str) -> gpd.GeoDataFrame:
+    """Each monitored point's latest reading against the prediction (settle.fitting.Comparison)."""
+    from settle.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
+
+    dates = pd.to_datetime(comparison.date).tz_localize("UTC")
+    columns = {"point_id": pd.Series(comparison.point_id, dtype=str), "drive": pd.Series(comparison.drive, dtype=str),
+               "date": dates, "face_chainage_m": comparison.face_chainage_m, "depth_m": comparison.depth_m,
+               "reading_mm": comparison.reading_mm, "predicted_mm": comparison.predicted_mm,
+               "difference_mm": comparison.difference_mm, "fitted_mm": comparison.fitted_mm,
+               "trigger_status": pd.Series(comparison.trigger_status, dtype=str)}
+    columns["trigger_class"] = _status_class(comparison.trigger_status, (STATUS_CLEAR, STATUS_AMBER, STATUS_RED))
+    return _frame(columns, shapely.points(comparison.x_m, comparison.y_m), crs, "readings")
 
 
 def rows_frame(rows: list[dict], fields, crs: str, layer: str) -> gpd.GeoDataFrame:

@@ -155,6 +155,16 @@ class Assessment:
         )
 
     @property
+    def building_results(self):
+        """The buildings step's results (settle.buildings.BuildingResults), without computing the grid."""
+        return self._buildings
+
+    @property
+    def utility_results(self):
+        """The utilities step's results (settle.pipelines.UtilityResults), without computing the grid."""
+        return self._utilities
+
+    @property
     def result(self) -> Result:
         if self._result is None:
             self.greenfield()

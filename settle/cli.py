@@ -60,6 +60,36 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("project", metavar="PROJECT.toml", help="the project file")
     run.add_argument("--out", metavar="DIR", required=True, help="folder for the outputs (created if missing)")
     run.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    run.add_argument("--readings", metavar="READINGS.csv",
+                     help="monitoring readings: adds the `readings` layer (latest reading, prediction, difference, "
+                          "trigger status against [monitoring] amber_mm and red_mm) and a figure per monitored "
+                          "cross-section")
+
+    fit = commands.add_parser(
+        "fit",
+        help="back-analyse volume loss and trough width from monitoring readings",
+        description=(
+            "Back-analyse the volume loss and trough width factor K that the monitoring readings show, per drive "
+            "(or per reach), against the same three-dimensional model `settle run` uses, with each reading's face "
+            "position. Writes DIR/fit.json (values, standard errors, readings used, residual RMS, outliers), "
+            "DIR/<stem>-fitted.toml (the project with the fitted values, which `settle run` accepts unchanged) "
+            "and, when the project has buildings or utilities, DIR/forecast.csv: what lies ahead of the face, "
+            "assessed again with the fitted values, marked where its category or status changed.\n\n" + CAUTION
+        ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    fit.add_argument("project", metavar="PROJECT.toml", help="the project file")
+    fit.add_argument("readings", metavar="READINGS.csv",
+                     help="readings: point_id, date (ISO 8601), settlement_mm, face_chainage_m, and x, y, depth_m "
+                          "or the [points] of the project; a drive column when there are several drives")
+    fit.add_argument("--out", metavar="DIR", required=True, help="folder for the outputs (created if missing)")
+    fit.add_argument("--per-reach", action="store_true", help="fit each reach of a drive on its own")
+    fit.add_argument("--outlier-limit", type=float, default=3.0, metavar="SIGMA",
+                     help="a reading further than this many robust standard deviations from the fit is an outlier "
+                          "(default 3)")
+    fit.add_argument("--min-face-past-m", type=float, default=None, metavar="M",
+                     help="fit only readings taken with the face at least this far past the point (default: all)")
+    fit.add_argument("--quiet", action="store_true", help="print nothing but errors")
     return parser
 
 
@@ -72,6 +102,7 @@ def _run(args) -> int:
     out = Path(args.out)
     if out.exists() and not out.is_dir():
         raise InputError(f"--out {out}: exists and is not a folder")
+    monitoring = _read_for_monitoring(project, args.readings) if args.readings else None
     progress = _Progress(sys.stderr.isatty() and not args.quiet)
     try:
         result = run(project, progress)
@@ -80,12 +111,19 @@ def _run(args) -> int:
 
     import gis_out
 
+    layers = gis_out.frames(result)
+    if monitoring:
+        layers["readings"] = _readings_layer(project, *monitoring)
     out.mkdir(parents=True, exist_ok=True)
     stem = Path(args.project).stem
     gpkg = out / f"{stem}.gpkg"
     summary_path = out / "summary.json"
-    gis_out.write_geopackage(gpkg, gis_out.frames(result))
-    outputs = {"geopackage": gpkg.name, "summary": summary_path.name}
+    from gis_out.styles import styles_hook, write_style_files
+
+    levels = project.output.contour_levels_mm
+    gis_out.write_geopackage(gpkg, layers, extra=styles_hook(layers, levels))
+    styles = write_style_files(out, stem, layers=layers, levels_mm=levels)
+    outputs = {"geopackage": gpkg.name, "summary": summary_path.name, "styles": sorted(p.name for p in styles)}
     if result.project.output.settlement_geotiff:
         from gis_out.raster import write_settlement_geotiff
 
@@ -100,15 +138,116 @@ def _run(args) -> int:
         outputs["utilities_table"] = _write_rows_csv(out / "utilities.csv", _utility_table(result))
     if result.face:
         outputs.update(_write_face(result, out))
+    if monitoring:
+        outputs["readings_sections"] = _write_sections(project, *monitoring, out)
     summary = summarise(result, outputs=outputs)
+    if monitoring:
+        summary["readings"] = _readings_summary(layers["readings"], monitoring[0])
     gis_out.write_text_atomic(summary_path, json.dumps(summary, indent=2) + "\n")
 
     if not args.quiet:
+        if monitoring:
+            for message in monitoring[0].left_out_messages():
+                print(f"warning: left out: {message}", file=sys.stderr)
         for warning in result.warnings:
             print(f"warning: {warning}", file=sys.stderr)
         from .terminal import summary_table
 
         print(summary_table(summary, out))
+    return 0
+
+
+def _read_for_monitoring(project, readings_path):
+    """Readings and their back-analysis; the project must give trigger levels."""
+    from .fitting import back_analysis
+    from .readings import read_readings
+
+    if project.monitoring is None:
+        raise InputError(f"{project.path}: --readings needs trigger levels: add [monitoring] amber_mm and red_mm")
+    readings = read_readings(readings_path, project)
+    return readings, back_analysis(project, readings)
+
+
+def _readings_layer(project, readings, analysis):
+    """The `readings` layer: each point's latest reading, prediction, difference, fitted value, trigger status."""
+    from gis_out.frames import readings_frame
+
+    from .fitting import comparison
+
+    amber, red = project.monitoring
+    return readings_frame(comparison(project, readings, amber, red, fits=analysis.fits), project.crs)
+
+
+def _write_sections(project, readings, analysis, out: Path) -> list[str]:
+    """A figure per monitored cross-section: readings against the design and the fitted troughs."""
+    from gis_out.monitoring_figures import section_png
+
+    from .monitoring import monitored_sections
+
+    names = []
+    for section in monitored_sections(project, readings, analysis):
+        path = out / f"section_{_slug(section.drive)}_{section.chainage_m:.0f}.png"
+        section_png(section, path)
+        names.append(path.name)
+    return names
+
+
+def _readings_summary(layer, readings) -> dict:
+    """Counts for summary.json: points compared, by trigger status, and rows left out of the readings file."""
+    counts = layer["trigger_status"].value_counts()
+    return {"points": len(layer), "by_trigger_status": {k: int(v) for k, v in counts.items()},
+            "rows_left_out": readings.left_out_count}
+
+
+def _fit(args) -> int:
+    """`settle fit`: back-analysis, fitted project file, forecast ahead of the face."""
+    import gis_out
+
+    from .fitting import back_analysis, fit_report, fitted_project_toml
+    from .monitoring import FORECAST_FIELDS, forecast_ahead
+    from .project import load_project
+    from .readings import read_readings
+
+    project = load_project(args.project)
+    readings = read_readings(args.readings, project)
+    if not args.outlier_limit > 0:
+        raise InputError(f"--outlier-limit must be more than 0; got {args.outlier_limit:g}")
+    analysis = back_analysis(project, readings, per_reach=args.per_reach, outlier_limit=args.outlier_limit,
+                             min_face_past_m=args.min_face_past_m)
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"--out {out}: exists and is not a folder")
+    out.mkdir(parents=True, exist_ok=True)
+    stem = Path(args.project).stem
+    fitted_path = out / f"{stem}-fitted.toml"
+    fitted_text = fitted_project_toml(args.project, analysis.fits, out_dir=out)
+    report = fit_report(project, readings, analysis)
+    forecast = forecast_ahead(project, readings, analysis)
+    report["forecast"] = {"items_ahead_of_face": len(forecast),
+                          "changed": [r for r in forecast if r["changed"]],
+                          "note": "buildings (damage category) and utilities (status) ahead of the latest face, "
+                                  "assessed with the design and the fitted values, every drive complete"}
+    report["caution"] = CAUTION
+    gis_out.write_text_atomic(fitted_path, fitted_text)
+    outputs = {"fitted_project": fitted_path.name}
+    if forecast:
+        outputs["forecast"] = _write_rows_csv(out / "forecast.csv", [{k: r[k] for k in FORECAST_FIELDS}
+                                                                     for r in forecast])
+    report["outputs"] = outputs
+    gis_out.write_text_atomic(out / "fit.json", json.dumps(report, indent=2, allow_nan=False) + "\n")
+    if not args.quiet:
+        for message in readings.left_out_messages():
+            print(f"warning: left out: {message}", file=sys.stderr)
+        for warning in analysis.warnings:
+            print(f"warning: {warning}", file=sys.stderr)
+        for fit in report["fits"]:
+            print(f"{fit['drive']} ({fit['part']}): volume loss {fit['volume_loss_pct']:.3f} % "
+                  f"(se {fit['volume_loss_pct_se'] or float('nan'):.3f}), K {fit['trough_width_k']:.3f} "
+                  f"(se {fit['trough_width_k_se'] or float('nan'):.3f}); {fit['readings_used']} readings, "
+                  f"RMS {fit['rms_mm']:.2f} mm, {len(fit['outliers'])} outliers")
+        changed = report["forecast"]["changed"]
+        print(f"ahead of the face: {len(forecast)} buildings and utilities re-assessed, {len(changed)} changed")
+        print(f"wrote {out / 'fit.json'}, {fitted_path}" + (f", {out / 'forecast.csv'}" if forecast else ""))
     return 0
 
 
@@ -163,6 +302,8 @@ def main(argv=None) -> int:
     try:
         if args.command == "run":
             return _run(args)
+        if args.command == "fit":
+            return _fit(args)
     except InputError as exc:
         print(f"settle: error: {exc}", file=sys.stderr)
         return InputError.exit_status

@@ -117,6 +117,8 @@ class Project:
     # Buildings (settle.buildings): footprints read from [buildings] file, and the assessment's settings.
     buildings: object | None = None  # settle.footprints.Buildings
     building_options: object | None = None  # settle.buildings.AssessmentOptions
+    # Trigger levels for monitoring readings, (amber_mm, red_mm): [monitoring] amber_mm, red_mm.
+    monitoring: tuple[float, float] | None = None
     # Buried utilities (settle.pipelines): the lines read from [utilities] file, and the assessment's settings.
     utilities: object | None = None  # settle.utility_lines.Utilities
     utility_options: object | None = None  # settle.pipelines.UtilityOptions

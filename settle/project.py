@@ -103,7 +103,8 @@ from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output
 from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,
                      read_surface_points, shown)
 
-TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings")
+TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings",
+            "monitoring")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
@@ -121,6 +122,7 @@ BUILDING_READ_KEYS = ("layer", "id_attribute", "height_attribute", "foundation_d
 BUILDING_KEYS = ("file",) + BUILDING_READ_KEYS + (
     "poisson_ratio", "screening_slope_limit", "screening_settlement_limit_mm", "interior_spacing_m",
     "stiffness_correction") + MODIFICATION_ATTRIBUTES
+MONITORING_KEYS = ("amber_mm", "red_mm")
 UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
 OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm", "settlement_geotiff")
@@ -172,9 +174,17 @@ def load_project(path) -> Project:
     strengths, rivers, face = _face_inputs(doc, name, ground, drives)
     utilities, utility_options = _utilities(doc, name, path.parent, crs, ground, warnings)
     buildings, building_options = _buildings(doc, name, path.parent, crs, warnings)
+    monitoring = None
+    if "monitoring" in doc:
+        where = f"{name} [monitoring]"
+        table = _table(doc, "monitoring", name)
+        _check_keys(table, MONITORING_KEYS, where)
+        amber = _number(table, "amber_mm", where, gt=0.0)
+        monitoring = (amber, _number(table, "red_mm", where, gt=amber))
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
                    warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face, utilities=utilities,
-                   utility_options=utility_options, buildings=buildings, building_options=building_options)
+                   utility_options=utility_options, buildings=buildings, building_options=building_options,
+                   monitoring=monitoring)
 
 
 # ------------------------------------------------------------------------------------------------ generic helpers

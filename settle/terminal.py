@@ -33,8 +33,10 @@ def summary_table(summary: dict, folder) -> str:
                      f"{face['face_min_window_chainage_m']:.1f} m; {face['face_closed_stations']} closed, "
                      f"{face['face_narrow_stations']} narrow of {face['stations']} stations"))
     files = summary.get("outputs", {})
-    names = [v for v in files.values() if isinstance(v, str)] + [n for v in files.values() if isinstance(v, list)
-                                                                 for n in v]
+    names = [v for v in files.values() if isinstance(v, str)] + [n for k, v in files.items() if isinstance(v, list)
+                                                                 and k != "styles" for n in v]
+    if files.get("styles"):
+        names.append(f"{len(files['styles'])} style files (.qml, .sld)")
     rows.append(("outputs", f"{folder}: " + ", ".join(names)))
     width = max(len(label) for label, _ in rows)
     return "\n".join(f"{label:<{width}}  {text}" for label, text in rows)

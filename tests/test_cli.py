@@ -23,7 +23,7 @@ def settle(*args, cwd=None):
 @pytest.fixture(scope="module")
 def demo_run(tmp_path_factory):
     out = tmp_path_factory.mktemp("demo_out")
-    done = settle("run", DEMO / "ostrey.toml", "--out", out)
+    done = settle("run", DEMO / "ostrey.toml", "--readings", DEMO / "cable_tunnel_readings.csv", "--out", out)
     return done, out
 
 
@@ -31,9 +31,9 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
     done, out = demo_run
     assert done.returncode == 0, done.stderr
     gpkg = out / "ostrey.gpkg"
-    assert sorted(fiona.listlayers(gpkg)) == sorted(["route", "grid", "settlement_bands", "settlement_lines", "points",
+    assert sorted(fiona.listlayers(gpkg)) == sorted(["layer_styles", "route", "grid", "settlement_bands", "settlement_lines", "points",
                                                      "face_stations", "utilities", "utility_critical_points",
-                                                     "buildings", "building_walls"])
+                                                     "buildings", "building_walls", "readings"])
     fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
     assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
     assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
@@ -71,12 +71,12 @@ def test_demo_utilities(demo_run):
     with fiona.open(out / "ostrey.gpkg", layer="utilities") as layer:
         assert {"max_bending_strain_ue", "max_axial_strain_ue", "max_joint_rotation_deg", "max_joint_opening_mm",
                 "governing_check", "utilisation", "status"} <= set(layer.schema["properties"])
-        assert len(layer) == 5
+        assert len(layer) == 6
     summary = json.loads((out / "summary.json").read_text())
-    assert summary["utilities"]["pipes"] == 5 and sum(summary["utilities"]["by_status"].values()) == 5
+    assert summary["utilities"]["pipes"] == 6 and sum(summary["utilities"]["by_status"].values()) == 6
     table = (out / "utilities.csv").read_text().splitlines()
     assert "qualified engineer" in table[0] and table[1].startswith("id,material,")
-    assert len(table) == 2 + 5
+    assert len(table) == 2 + 6
 
 
 def test_demo_buildings_show_several_categories(demo_run):
@@ -90,12 +90,12 @@ def test_demo_buildings_show_several_categories(demo_run):
     with fiona.open(out / "ostrey.gpkg", layer="building_walls") as walls:
         assert len(walls) > 0
     summary = json.loads((out / "summary.json").read_text())["buildings"]
-    assert summary["buildings"] == len(categories) == 28
+    assert summary["buildings"] == len(categories) == 29
     counts = {c: categories.count(int(c)) for c in summary["by_category"]}
     assert counts == summary["by_category"]
     assert sum(1 for n in counts.values() if n) >= 3  # the demo shows several categories (issue 3)
     table = (out / "buildings.csv").read_text().splitlines()
-    assert "qualified engineer" in table[0] and len(table) == 2 + 28
+    assert "qualified engineer" in table[0] and len(table) == 2 + 29
 
 
 def test_demo_summary(demo_run):
@@ -115,7 +115,7 @@ def test_demo_summary(demo_run):
 
 def test_same_project_gives_the_same_outputs(demo_run, tmp_path):
     _, out = demo_run
-    again = settle("run", DEMO / "ostrey.toml", "--out", tmp_path)
+    again = settle("run", DEMO / "ostrey.toml", "--readings", DEMO / "cable_tunnel_readings.csv", "--out", tmp_path)
     assert again.returncode == 0
     assert (tmp_path / "summary.json").read_text() == (out / "summary.json").read_text()
 
@@ -208,3 +208,67 @@ def test_terminal_summary_table(demo_run):
         f"{c}: {n}" for c, n in summary["buildings"]["by_category"].items()))
     assert "exceeds" in table["utilities by status"]
     assert "smallest" in table["face support window"] and "ostrey.gpkg" in table["outputs"]
+
+
+def test_demo_styles_inside_and_beside_the_geopackage(demo_run):
+    import sqlite3
+
+    _, out = demo_run
+    with sqlite3.connect(f"file:{out / 'ostrey.gpkg'}?mode=ro", uri=True) as con:
+        rows = con.execute("SELECT f_table_schema, f_table_name, f_geometry_column FROM layer_styles").fetchall()
+        kind = con.execute("SELECT data_type FROM gpkg_contents WHERE table_name = 'layer_styles'").fetchone()
+    assert kind == ("attributes",)
+    assert {name for _, name, _ in rows} >= {"settlement_bands", "buildings", "utilities", "face_stations"}
+    assert all(schema == "" and column == "geom" for schema, _, column in rows)  # what QGIS looks up
+    for name in ("settlement_bands", "buildings", "utilities", "face_stations"):
+        assert (out / f"ostrey-{name}.qml").exists() and (out / f"ostrey-{name}.sld").exists()
+
+
+def test_demo_readings_layer_and_sections(demo_run):
+    _, out = demo_run
+    with fiona.open(out / "ostrey.gpkg", layer="readings") as layer:
+        assert {"point_id", "reading_mm", "predicted_mm", "difference_mm", "fitted_mm", "trigger_status"} <= set(
+            layer.schema["properties"])
+        features = list(layer)
+    for f in features:
+        p = f["properties"]
+        assert abs(p["difference_mm"] - (p["reading_mm"] - p["predicted_mm"])) < 1e-9
+        assert p["trigger_status"] == ("red reached" if abs(p["reading_mm"]) >= 6.0 else
+                                       "amber reached" if abs(p["reading_mm"]) >= 3.0 else "clear")
+    summary = json.loads((out / "summary.json").read_text())
+    assert len(summary["outputs"]["readings_sections"]) == 2  # the two monitored arrays of the demo
+    for name in summary["outputs"]["readings_sections"]:
+        assert (out / name).stat().st_size > 20_000
+
+
+def test_fit_recovers_the_demo_truth_and_forecasts_ahead(tmp_path):
+    # demo_site/make_demo.py made the cable tunnel's readings from volume loss 1.2 % and K 0.42 (invented truth)
+    # with 0.3 mm noise and two misread staff readings: the fit finds them within 3 standard errors and flags both.
+    done = settle("fit", DEMO / "ostrey.toml", DEMO / "cable_tunnel_readings.csv", "--out", tmp_path)
+    assert done.returncode == 0, done.stderr
+    report = json.loads((tmp_path / "fit.json").read_text())
+    fit = report["fits"][0]
+    assert abs(fit["volume_loss_pct"] - 1.2) < 3 * fit["volume_loss_pct_se"]
+    assert abs(fit["trough_width_k"] - 0.42) < 3 * fit["trough_width_k_se"]
+    assert len(fit["outliers"]) == 2 and fit["rms_mm"] < 0.4
+    rerun = settle("run", tmp_path / "ostrey-fitted.toml", "--out", tmp_path / "rerun")
+    assert rerun.returncode == 0, rerun.stderr  # the fitted file runs unchanged
+    forecast = (tmp_path / "forecast.csv").read_text().splitlines()
+    assert forecast[1] == "kind,id,drive,chainage_m,design,forecast,changed"
+    assert any(line.endswith(",True") for line in forecast[2:])
+    assert report["forecast"]["items_ahead_of_face"] == len(forecast) - 2
+
+
+def test_fit_with_bad_readings_file(tmp_path):
+    bad = tmp_path / "r.csv"
+    bad.write_text("point_id,date,settlement_mm\nA,2026-01-01,1.0\n")
+    done = settle("fit", DEMO / "ostrey.toml", bad, "--out", tmp_path)
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert "face_chainage_m" in done.stderr
+
+
+def test_readings_need_trigger_levels(tmp_path):
+    toml = _broken_copy(tmp_path, "amber_mm = 3.0\nred_mm = 6.0\n", "")
+    toml.write_text(re.sub(r"\[monitoring\][^\n]*\n", "", toml.read_text()))
+    done = settle("run", toml, "--readings", DEMO / "cable_tunnel_readings.csv", "--out", tmp_path / "o")
+    assert done.returncode == 2 and "[monitoring] amber_mm and red_mm" in done.stderr

@@ -1,0 +1,788 @@
+"""Back-analysis from monitoring: the volume loss and trough width factor K that the readings show.
+
+Sign conventions (the project's): settlement positive downward [mm]; a residual is the reading minus the model
+[mm]; volume loss in per cent of the excavated area [%]; chainage along the 3-D axis [m].
+
+The model
+    The same forward model as the assessment. For each distinct face position among a drive's readings, the drive is
+    copied with `face_chainage_m` set to it (`dataclasses.replace`), `route.build_drive` and `route.tunnel_elements`
+    cut its excavated length into elements, and `field.movements_at_points` gives the settlement at each reading's
+    place and depth. A reading is attributed to the drive it names; the movements of other drives are not in its
+    model (the readings must be referred to a base reading that leaves them out, or those drives be far away).
+
+What is fitted (the scope)
+    Per drive (default): one volume loss and one K for the whole drive; its reaches take the same values. The fit is
+    keyed (drive name, None). Per reach (`per_reach=True`, for a drive with reaches): one volume loss and K for the
+    drive outside its reaches, key (name, 0), and one for each reach, key (name, n) with n = 1, 2, ... in chainage
+    order; they are fitted together, since a reading near a reach boundary sees both sides. A part of the drive is
+    fitted only when at least `MIN_READINGS_SEEN` readings each get at least `SEEN_SHARE` of the part's full
+    plane-strain Smax from it; a part the readings do not see keeps the project's values (and is reported). K is
+    fitted as a drive (or reach) override of the layers' K, so i = K z0 along it.
+
+Method
+    1. Settlement is exactly linear in volume loss at fixed K: the model is S = S_fixed + sum_p VL_p U_p(K_p), with
+       U_p the settlement of part p for 1 % volume loss and S_fixed that of the parts not fitted.
+    2. Robust fit: `scipy.optimize.least_squares` over (VL_p, K_p), loss "soft_l1" with f_scale = `ROBUST_SCALE_MM`
+       (residuals much larger than this weigh as their absolute value, not their square: our choice, about the
+       scatter of levelled settlement points, common practice), bounds VL `VOLUME_LOSS_BOUNDS_PCT` and K
+       `K_BOUNDS` (the project file's range of K). The start is the project's K and the linear solve for VL there.
+       The Jacobian is d S/d VL = U_p exactly and d S/d K by a central difference (step `K_STEP`, relative).
+    3. Outliers: robust sigma = 1.4826 x the median absolute deviation of the residuals (1.4826 = 1 / Phi^-1(0.75),
+       which makes it a consistent estimate of the standard deviation for normal scatter), at least
+       `SIGMA_FLOOR_MM`; a reading whose residual exceeds `outlier_limit` (default `OUTLIER_LIMIT` = 3) robust
+       sigmas is an outlier, reported by point id and date. With normal scatter alone about 0.3 % of readings lie
+       beyond 3 sigma, so a few small "outliers" among many readings are expected.
+    4. Final fit: ordinary least squares over the readings that are not outliers, from the robust solution. The
+       volume loss, K, `readings_used` and `rms_mm` are those of this fit; the standard errors are
+       sqrt(diag((J^T J)^-1 s^2)) with J the Jacobian at the solution and s^2 = sum r^2 / (n - p). A value at a bound
+       gets no standard error (NaN) and a warning: the readings do not hold it.
+    5. Element cuts depend slightly on K (the plan tolerance is a share of i), so steps 2-4 run on the cuts of the
+       current K with i = K z0 updated in each element, and the cuts are rebuilt at the solution until they no
+       longer change. `rms_mm` and the fitted settlements come from the forward model built afresh at the fitted
+       values, at the project's precision: a re-run of the fitted project file gives the same numbers (to the six
+       significant digits the file holds).
+
+Readings ahead of the face
+    By default all readings are kept with equal weight. A reading's pull on the estimate is its sensitivity
+    d S/d(VL, K), which the model makes small ahead of the face (the longitudinal cumulative-normal profile: half of
+    Smax above the face, under 3 % of it 2 i ahead), so readings ahead of the face inform the fit little and those
+    far behind it most. Movements the model does not hold (heave from face or lubricant pressure ahead of the face,
+    consolidation long after the face has passed) show as residuals; gross ones as outliers.
+    Field records do not always follow the model near the face: with closed-face machines the settlement above the
+    face is often 0.2 to 0.4 Smax rather than 0.5 (from memory), and in Hong Kong pipejacking it developed 3 to 4 z0
+    behind the face (methods.md section 2, second-hand). Where that shows, `min_face_past_m` fits only the readings
+    taken with the face at least that far past the point (along the drive, the point projected square onto the
+    axis in plan); the others are left out of the fit, counted in a warning, and still get a fitted value.
+
+References
+----------
+Jones, B. D. & Clayton, C. R. I. (2013). Guidelines for Gaussian curve-fitting to settlement data. World Tunnel
+    Congress 2013, Geneva (report the parameter uncertainty, not only the best fit; methods.md section 8).
+scipy.optimize.least_squares documentation: the "trf" bounded trust-region method, the "soft_l1" loss
+    rho(z) = 2 ((1 + z)^0.5 - 1) with z = (r / f_scale)^2, and the Jacobian at the solution (methods.md section 8
+    cites the scipy curve_fit pages for the same machinery).
+Rousseeuw, P. J. & Croux, C. (1993). Alternatives to the median absolute deviation. J. Am. Stat. Assoc. 88(424),
+    1273-1283 (the scaled MAD as a robust sigma; citation from memory; the factor is computed, see step 3).
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+import tomllib
+from dataclasses import asdict, dataclass, field, replace
+from pathlib import Path
+
+import numpy as np
+from scipy.optimize import least_squares
+from scipy.special import ndtri
+
+from .errors import InputError
+from .field import movements_at_points
+from .ground import GroundModel
+from .model import Drive, Project
+from .project import K_RANGE
+from .readings import Readings
+from .results import DriveResult
+from .route import Elements, build_drive, tunnel_elements
+
+#: soft_l1 loss scale of the robust fit: residuals much larger weigh linearly (our choice, common practice). [mm]
+ROBUST_SCALE_MM = 1.0
+#: A reading further than this many robust sigmas from the robust fit is an outlier. [-]
+OUTLIER_LIMIT = 3.0
+#: Robust sigma = MAD_TO_SIGMA x median absolute deviation; 1 / Phi^-1(0.75) = 1.4826 (normal scatter). [-]
+MAD_TO_SIGMA = float(1.0 / ndtri(0.75))
+#: The robust sigma is never taken below this, the resolution of precise levelling (common practice). [mm]
+SIGMA_FLOOR_MM = 0.05
+#: Bounds of the fitted volume loss: more than 0 (the project file needs it) up to the project file's maximum. [%]
+VOLUME_LOSS_BOUNDS_PCT = (0.001, 20.0)
+#: Bounds of the fitted K: the project file's range of trough_width_k. [-]
+K_BOUNDS = (K_RANGE["ge"], K_RANGE["le"])
+#: Relative step of the central difference in K. [-]
+K_STEP = 1e-3
+#: Contributions below this are not evaluated during the fit: small, so the model is smooth in K. [m]
+FIT_PRECISION_M = 1e-9
+#: A part of the drive is fitted when at least MIN_READINGS_SEEN readings get SEEN_SHARE of its Smax from it.
+SEEN_SHARE = 0.25
+MIN_READINGS_SEEN = 3
+#: Rebuilds of the element cuts at the solution, at most.
+MAX_ROUNDS = 4
+#: Trigger status of a reading against the user's trigger levels (|settlement| compared, heave included).
+STATUS_CLEAR, STATUS_AMBER, STATUS_RED = "clear", "amber reached", "red reached"
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """Back-analysed values for one drive or one part of it (see the module docstring for the key)."""
+
+    volume_loss_pct: float  # [%]
+    trough_width_k: float  # [-]
+    volume_loss_pct_se: float  # standard error [%]; NaN when not defined
+    trough_width_k_se: float  # standard error [-]; NaN when not defined
+    readings_used: int  # readings in the final fit (outliers and points below the crown left out)
+    rms_mm: float  # root mean square of the residuals of the readings used [mm]
+    outliers: list = field(default_factory=list)  # dicts: point_id, date, line, reading_mm, fitted_mm,
+    #                                               residual_mm, standardised_residual
+
+
+@dataclass
+class BackAnalysis:
+    """What `back_analysis` returns: the fits, per reading what the fit made of it, and warnings for the user."""
+
+    fits: dict  # (drive name, None | reach number) -> FitResult
+    fitted_mm: np.ndarray  # settlement of the fitted model at each reading; NaN where its drive was not fitted
+    in_fit: np.ndarray  # bool, the reading is one of the readings used
+    outlier: np.ndarray  # bool
+    warnings: list[str]
+    outlier_limit: float = OUTLIER_LIMIT  # [robust sigmas]
+    min_face_past_m: float | None = None  # [m]; None = all readings fitted
+
+
+# ------------------------------------------------------------------------------------------------- the model
+def drive_with_values(drive: Drive, values: dict) -> Drive:
+    """A copy of `drive` with volume loss and K set: `values` maps None (the whole drive, reaches too), 0 (the drive
+    outside its reaches) or n >= 1 (its n-th reach in chainage order) to (volume_loss_pct, trough_width_k)."""
+    if None in values:
+        vl, k = values[None]
+        reaches = tuple(replace(r, volume_loss_pct=vl, trough_width_k=k) for r in drive.reaches)
+        return replace(drive, volume_loss_pct=vl, trough_width_k=k, reaches=reaches)
+    out = drive
+    if 0 in values:
+        out = replace(out, volume_loss_pct=values[0][0], trough_width_k=values[0][1])
+    reaches = tuple(replace(r, volume_loss_pct=values[n][0], trough_width_k=values[n][1]) if n in values else r
+                    for n, r in enumerate(drive.reaches, 1))
+    return replace(out, reaches=reaches)
+
+
+def apply_fits(project: Project, fits: dict) -> Project:
+    """The project with the fitted volume loss and K written into its drives (as `fitted_project_toml` does)."""
+    drives = []
+    for drive in project.drives:
+        values = {key[1]: (f.volume_loss_pct, f.trough_width_k) for key, f in fits.items() if key[0] == drive.name}
+        drives.append(drive_with_values(drive, values) if values else drive)
+    return replace(project, drives=tuple(drives))
+
+
+def _check_drives(project: Project, readings: Readings) -> None:
+    names = tuple(d.name for d in project.drives)
+    if names != readings.drive_names:
+        raise InputError(f"{readings.source}: the readings were read against drives {readings.drive_names}, but the "
+                         f"project has {names}; read them again against this project")
+
+
+def predicted_settlement_mm(project: Project, readings: Readings, ground: GroundModel | None = None) -> np.ndarray:
+    """Settlement of the project's model at each reading's place and depth, with the face where the reading gives it.
+
+    Each reading sees only the drive it names. NaN for a point at or below the crown of an element that reaches it.
+    `ground` may pass the project's GroundModel already built (it depends on the ground only). [mm, positive downward]
+    """
+    _check_drives(project, readings)
+    ground = ground or GroundModel(project.ground)
+    label = project.path.name if project.path else "project"
+    precision = project.output.precision_mm / 1e3
+    out = np.full(len(readings), np.nan)
+    for d, drive in enumerate(project.drives):
+        idx = np.flatnonzero(readings.drive == d)
+        faces, inverse = np.unique(readings.face_chainage_m[idx], return_inverse=True)
+        for j, face in enumerate(faces):
+            rows = idx[inverse == j]
+            at_face = replace(drive, face_chainage_m=float(face))
+            geometry, _ = build_drive(at_face, ground, label)
+            elements = tunnel_elements(at_face, geometry, ground, d)
+            out[rows] = movements_at_points(elements, ground, readings.x_m[rows], readings.y_m[rows],
+                                            readings.depth_m[rows], precision).settlement_mm
+    return out
+
+
+def point_chainage_m(geometry: DriveResult, x, y) -> np.ndarray:
+    """Chainage of the foot of the perpendicular from each place to the drive's axis in plan (the nearest point of
+    the plan polyline; places beyond an end take the end's chainage). [m]"""
+    x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+    a, b = geometry.axis_xyz_m[:-1, :2], geometry.axis_xyz_m[1:, :2]
+    ca, cb = geometry.chainage_m[:-1], geometry.chainage_m[1:]
+    places, inverse = np.unique(np.column_stack([x, y]), axis=0, return_inverse=True)
+    out = np.empty(len(places))
+    for start in range(0, len(places), 256):
+        p = places[start:start + 256, None, :]
+        seg = b - a
+        t = np.clip(((p - a) * seg).sum(axis=2) / (seg * seg).sum(axis=1), 0.0, 1.0)
+        gap = np.hypot(*(a + t[..., None] * seg - p).transpose(2, 0, 1))
+        k = np.argmin(gap, axis=1)
+        rows = np.arange(len(k))
+        out[start:start + 256] = ca[k] + t[rows, k] * (cb[k] - ca[k])
+    return out[inverse.ravel()]
+
+
+def _take(elements: Elements, keep: np.ndarray) -> Elements:
+    return Elements(**{k: getattr(elements, k)[keep] for k in Elements.__dataclass_fields__})
+
+
+def _part_of(drive: Drive, keys: list, chainage_m: np.ndarray) -> np.ndarray:
+    """Index into `keys` of the part of the drive each chainage lies in (as `route` assigns reach values)."""
+    part = np.zeros(len(chainage_m), dtype=int)
+    if keys != [None]:
+        for n, reach in enumerate(drive.reaches, 1):
+            part[(chainage_m >= reach.from_chainage_m) & (chainage_m < reach.to_chainage_m)] = n
+    return part
+
+
+class _DriveModel:
+    """The forward model of one drive at its readings, split into the parts fitted, with the element cuts of a
+    reference K kept while K varies (the cuts are rebuilt by `build`)."""
+
+    def __init__(self, project: Project, ground: GroundModel, d: int, readings: Readings, idx: np.ndarray,
+                 keys: list):
+        self.drive = project.drives[d]
+        self.d, self.ground, self.keys = d, ground, keys
+        self.x, self.y, self.depth = readings.x_m[idx], readings.y_m[idx], readings.depth_m[idx]
+        faces, inverse = np.unique(readings.face_chainage_m[idx], return_inverse=True)
+        self.faces = [float(f) for f in faces]
+        self.rows = [np.flatnonzero(inverse == j) for j in range(len(faces))]
+        label = project.path.name if project.path else "project"
+        self.geometry = [build_drive(replace(self.drive, face_chainage_m=f), ground, label)[0] for f in self.faces]
+        self.fitted = np.ones(len(keys), dtype=bool)
+        # Distinct volume losses per part force element cuts at every part boundary.
+        fixed = {self.drive.volume_loss_pct} | {r.volume_loss_pct for r in self.drive.reaches}
+        self.nominal = []
+        candidate = 1.0
+        for _ in keys:
+            while candidate in fixed or candidate in self.nominal:
+                candidate += 0.125
+            self.nominal.append(candidate)
+            candidate += 0.125
+        self.k_ref = None
+        self.pieces = []
+        self.cuts = None
+        self._columns = {}
+
+    def project_k(self) -> np.ndarray:
+        """K of each part in the project (the layers' thickness-weighted K where no override), for a start."""
+        face = max(range(len(self.faces)), key=lambda j: self.faces[j])
+        at_face = replace(self.drive, face_chainage_m=self.faces[face])
+        el = tunnel_elements(at_face, self.geometry[face], self.ground, self.d)
+        part = _part_of(self.drive, self.keys, 0.5 * (el.chainage_from_m + el.chainage_to_m))
+        overall = float(np.median(el.trough_width_k)) if len(el) else 0.5
+        k = [float(np.median(el.trough_width_k[part == p])) if np.any(part == p) else overall
+             for p in range(len(self.keys))]
+        return np.clip(k, *K_BOUNDS)
+
+    @property
+    def parts(self) -> np.ndarray:
+        """Indices (into keys) of the parts fitted."""
+        return np.flatnonzero(self.fitted)
+
+    def build(self, k: np.ndarray) -> bool:
+        """Cut the elements with the parts fitted at K = k (one per part fitted, 1 % volume loss each); True when
+        the cuts changed."""
+        values = {self.keys[p]: (self.nominal[p], float(k[j])) for j, p in enumerate(self.parts)}
+        model = drive_with_values(self.drive, values)
+        pieces, cuts = [], []
+        for face, geometry in zip(self.faces, self.geometry):
+            el = tunnel_elements(replace(model, face_chainage_m=face), geometry, self.ground, self.d)
+            part = _part_of(self.drive, self.keys, 0.5 * (el.chainage_from_m + el.chainage_to_m))
+            units = {}
+            for p in self.parts:
+                sub = _take(el, part == p)
+                sub.volume_per_m = sub.volume_per_m / self.nominal[p]  # per 1 % volume loss
+                units[p] = sub
+            pieces.append((units, _take(el, ~self.fitted[part])))
+            cuts.append(el.chainage_from_m)
+        changed = self.cuts is None or any(a.shape != b.shape or np.any(a != b) for a, b in zip(cuts, self.cuts))
+        self.k_ref, self.pieces, self.cuts = np.array(k, dtype=float), pieces, cuts
+        self._columns = {}
+        return changed
+
+    def _evaluate(self, elements: Elements, rows: np.ndarray) -> np.ndarray:
+        return movements_at_points(elements, self.ground, self.x[rows], self.y[rows], self.depth[rows],
+                                   FIT_PRECISION_M).settlement_mm
+
+    def column(self, p: int, k: float) -> np.ndarray:
+        """Settlement of part p for 1 % volume loss at K = k, at every reading (cuts of the last build). [mm]"""
+        key = (p, float(k))
+        if key not in self._columns:
+            out = np.zeros(len(self.x))
+            for (units, _), rows in zip(self.pieces, self.rows):
+                el = units[p]
+                if len(el):
+                    el = replace(el, trough_width_k=np.full(len(el), float(k)), trough_width_m=el.axis_depth_m * k)
+                    out[rows] = self._evaluate(el, rows)
+            self._columns[key] = out
+        return self._columns[key]
+
+    def unit(self, k: np.ndarray) -> np.ndarray:
+        """(n readings, n parts fitted) settlements for 1 % volume loss at K = k (one per part fitted). [mm]"""
+        return np.column_stack([self.column(p, k[j]) for j, p in enumerate(self.parts)])
+
+    def fixed(self) -> np.ndarray:
+        """Settlement of the parts not fitted, at the project's values. [mm]"""
+        out = np.zeros(len(self.x))
+        for (_, el), rows in zip(self.pieces, self.rows):
+            if len(el):
+                out[rows] = self._evaluate(el, rows)
+        return out
+
+    def full_smax_mm(self) -> np.ndarray:
+        """Median plane-strain Smax of each fitted part's elements for 1 % volume loss, at the largest face (NaN for
+        a part not excavated there). [mm]"""
+        units = self.pieces[int(np.argmax(self.faces))][0]
+        return np.array([float(np.median(units[p].max_settlement_m)) * 1e3 if len(units[p]) else np.nan
+                         for p in self.parts])
+
+
+# --------------------------------------------------------------------------------------------- the fitting
+def _robust_sigma(residual: np.ndarray) -> float:
+    """MAD_TO_SIGMA x median absolute deviation, not below SIGMA_FLOOR_MM. [mm]"""
+    mad = float(np.median(np.abs(residual - np.median(residual))))
+    return max(MAD_TO_SIGMA * mad, SIGMA_FLOOR_MM)
+
+
+def _solve(model: _DriveModel, observed: np.ndarray, active: np.ndarray, p0: np.ndarray, outlier_limit: float):
+    """Steps 2 to 4 of the method on the current cuts: (parameters, outlier mask, robust sigma, Jacobian)."""
+    parts = model.parts
+    m = len(parts)
+    fixed = model.fixed()
+
+    def residual(p, rows):
+        return model.unit(p[m:])[rows] @ p[:m] + fixed[rows] - observed[rows]
+
+    def jacobian(p, rows):
+        vl, k = p[:m], p[m:]
+        cols = [model.unit(k)[rows]]
+        deriv = np.empty((int(rows.sum()), m))
+        for j, part in enumerate(parts):
+            h = K_STEP * k[j]
+            deriv[:, j] = vl[j] * (model.column(part, k[j] + h) - model.column(part, k[j] - h))[rows] / (2.0 * h)
+        return np.column_stack(cols + [deriv])
+
+    lower = [VOLUME_LOSS_BOUNDS_PCT[0]] * m + [K_BOUNDS[0]] * m
+    upper = [VOLUME_LOSS_BOUNDS_PCT[1]] * m + [K_BOUNDS[1]] * m
+    p0 = np.clip(p0, lower, upper)
+    robust = least_squares(residual, p0, jac=jacobian, bounds=(lower, upper), loss="soft_l1",
+                           f_scale=ROBUST_SCALE_MM, x_scale="jac", args=(active,))
+    r = np.zeros(len(observed))
+    r[active] = -residual(robust.x, active)
+    sigma = _robust_sigma(r[active])
+    outlier = active & (np.abs(r) > outlier_limit * sigma)
+    inlier = active & ~outlier
+    final = least_squares(residual, robust.x, jac=jacobian, bounds=(lower, upper), loss="linear",
+                          x_scale="jac", args=(inlier,))
+    return final.x, outlier, sigma, jacobian(final.x, inlier), final.active_mask
+
+
+def _start(model: _DriveModel, observed: np.ndarray, active: np.ndarray, k0: np.ndarray) -> np.ndarray:
+    """Start values: K of the project and the linear least-squares volume loss there."""
+    u = model.unit(k0)[active]
+    vl, *_ = np.linalg.lstsq(u, observed[active] - model.fixed()[active], rcond=None)
+    return np.concatenate([np.clip(vl, *VOLUME_LOSS_BOUNDS_PCT), k0])
+
+
+def _describe(drive: Drive, key) -> str:
+    if key is None:
+        return f"drive {json.dumps(drive.name)}"
+    if key == 0:
+        return f"drive {json.dumps(drive.name)} outside its reaches"
+    r = drive.reaches[key - 1]
+    return f"drive {json.dumps(drive.name)} reach {key} ({r.from_chainage_m:g} to {r.to_chainage_m:g} m)"
+
+
+def back_analysis(project: Project, readings: Readings, per_reach: bool = False,
+                  outlier_limit: float = OUTLIER_LIMIT, min_face_past_m: float | None = None) -> BackAnalysis:
+    """Fit volume loss and K to monitoring readings, per drive (or per reach), robustly (see the module docstring).
+
+    Parameters
+    ----------
+    project : Project        The project whose forward model is fitted (drives, ground, precision).
+    readings : Readings      From `settle.readings.read_readings` against this project.
+    per_reach : bool         Fit the reaches of a drive separately (drives without reaches are fitted whole).
+    outlier_limit : float    Outlier threshold in robust sigmas. [-]
+    min_face_past_m : float  Fit only readings taken with the face at least this far past the point; None = all
+                             readings (see "Readings ahead of the face"). [m]
+
+    Returns
+    -------
+    BackAnalysis  Fits keyed (drive name, None | part number), the fitted settlement per reading, warnings.
+
+    Raises
+    ------
+    InputError  When no drive can be fitted (no reading sees the excavation).
+    """
+    if not outlier_limit > 0:
+        raise ValueError(f"outlier_limit must be more than 0; got {outlier_limit}")
+    if min_face_past_m is not None and not math.isfinite(min_face_past_m):
+        raise ValueError(f"min_face_past_m must be a finite number of metres or None; got {min_face_past_m}")
+    _check_drives(project, readings)
+    ground = GroundModel(project.ground)
+    fits, warnings = {}, []
+    in_fit = np.zeros(len(readings), dtype=bool)
+    outlier = np.zeros(len(readings), dtype=bool)
+    fitted_values = {}
+    for d, drive in enumerate(project.drives):
+        idx = np.flatnonzero(readings.drive == d)
+        if not len(idx):
+            continue
+        keys = [None] if not (per_reach and drive.reaches) else list(range(len(drive.reaches) + 1))
+        model = _DriveModel(project, ground, d, readings, idx, keys)
+        observed = readings.settlement_mm[idx]
+        k0 = model.project_k()
+        model.build(k0)
+
+        # Which parts the readings see, and which readings lie below a crown (no model there).
+        with np.errstate(invalid="ignore"):
+            seen = (model.unit(k0) >= SEEN_SHARE * model.full_smax_mm()[None, :]).sum(axis=0)
+        model.fitted = seen >= MIN_READINGS_SEEN
+        for p in np.flatnonzero(~model.fitted):
+            warnings.append(f"{_describe(drive, keys[p])}: not fitted, {int(seen[p])} reading(s) see it (at least "
+                            f"{MIN_READINGS_SEEN} must get {SEEN_SHARE:.0%} of its Smax); the project's values kept")
+        if not model.fitted.any():
+            continue
+        k0 = k0[model.fitted]
+        m = len(k0)
+        model.build(k0)
+        widest = model.unit(np.full(m, K_BOUNDS[1]))
+        deep = np.isnan(widest).any(axis=1) | np.isnan(model.fixed()) | np.isnan(model.unit(k0)).any(axis=1)
+        active = ~deep
+        if min_face_past_m is not None:
+            past = readings.face_chainage_m[idx] - point_chainage_m(model.geometry[0], model.x, model.y)
+            near = ~deep & (past < min_face_past_m)
+            active &= ~near
+            if near.any():
+                warnings.append(f"drive {json.dumps(drive.name)}: {int(near.sum())} reading(s) taken with the face "
+                                f"less than {min_face_past_m:g} m past the point left out of the fit "
+                                "(min_face_past_m)")
+        if deep.any():
+            ids = sorted(set(readings.point_id[idx][deep]))
+            warnings.append(f"drive {json.dumps(drive.name)}: {int(deep.sum())} reading(s) at points at or below the "
+                            f"crown left out (no subsurface trough there): {', '.join(ids[:10])}"
+                            + (" ..." if len(ids) > 10 else ""))
+        if active.sum() <= 2 * m:
+            warnings.append(f"drive {json.dumps(drive.name)}: not fitted, {int(active.sum())} usable reading(s) for "
+                            f"{2 * m} values")
+            continue
+        p = _start(model, observed, active, k0)
+        for _ in range(MAX_ROUNDS):
+            p, out, sigma, jac, at_bound = _solve(model, observed, active, p, outlier_limit)
+            if not model.build(p[m:]):
+                break
+        inlier = active & ~out
+
+        values = {keys[q]: (float(p[j]), float(p[m + j])) for j, q in enumerate(model.parts)}
+        at_fit = replace(project, drives=tuple(drive_with_values(dr, values) if dr is drive else dr
+                                               for dr in project.drives))
+        exact = predicted_settlement_mm(at_fit, readings.subset(idx), ground)
+        residual = observed - exact
+        n_used, n_par = int(inlier.sum()), 2 * m
+        rms = float(np.sqrt(np.mean(residual[inlier] ** 2))) if n_used else math.nan
+        se = np.full(n_par, math.nan)
+        if n_used > n_par:
+            s2 = float(np.sum(residual[inlier] ** 2)) / (n_used - n_par)
+            jtj = jac.T @ jac
+            if np.linalg.cond(jtj) < 1e12:
+                se = np.sqrt(np.diag(np.linalg.inv(jtj)) * s2)
+            else:
+                warnings.append(f"drive {json.dumps(drive.name)}: the readings cannot tell volume loss and K apart "
+                                "(their Jacobian is singular); no standard errors")
+        else:
+            warnings.append(f"drive {json.dumps(drive.name)}: {n_used} reading(s) for {n_par} values; no standard "
+                            "errors")
+        se[at_bound != 0] = math.nan
+        outliers = [{
+            "point_id": str(readings.point_id[idx][r]), "date": str(readings.date[idx][r]),
+            "line": int(readings.line[idx][r]), "reading_mm": float(observed[r]), "fitted_mm": float(exact[r]),
+            "residual_mm": float(residual[r]), "standardised_residual": float(residual[r] / sigma),
+        } for r in np.flatnonzero(out)]
+        for j, q in enumerate(model.parts):
+            for value, (lo, hi), name in ((p[j], VOLUME_LOSS_BOUNDS_PCT, "volume_loss_pct"),
+                                          (p[m + j], K_BOUNDS, "trough_width_k")):
+                if value <= lo * (1 + 1e-9) or value >= hi * (1 - 1e-9):
+                    warnings.append(f"{_describe(drive, keys[q])}: fitted {name} = {value:g} is at the bound of "
+                                    f"its range ({lo:g} to {hi:g}); the readings do not hold it")
+            fits[(drive.name, keys[q])] = FitResult(
+                volume_loss_pct=float(p[j]), trough_width_k=float(p[m + j]), volume_loss_pct_se=float(se[j]),
+                trough_width_k_se=float(se[m + j]), readings_used=n_used, rms_mm=rms, outliers=outliers)
+        in_fit[idx] = inlier
+        outlier[idx] = out
+        fitted_values[d] = exact
+    if not fits:
+        raise InputError(f"{readings.source}: no drive could be fitted: no part of any drive is seen by at least "
+                         f"{MIN_READINGS_SEEN} readings")
+    fitted_mm = np.full(len(readings), np.nan)
+    for d, values in fitted_values.items():
+        fitted_mm[readings.drive == d] = values
+    return BackAnalysis(fits=fits, fitted_mm=fitted_mm, in_fit=in_fit, outlier=outlier, warnings=warnings,
+                        outlier_limit=outlier_limit, min_face_past_m=min_face_past_m)
+
+
+# ----------------------------------------------------------------------------------------- the fitted project
+#: Keys whose text value is a path relative to the project file; any other text value naming an existing file
+#: beside the project file is taken to be a path too (keys added to the project file later).
+PATH_KEYS = ("surface_points", "alignment", "file")
+_HEADER = re.compile(r"^\s*(\[\[?)\s*([A-Za-z0-9_.\-]+)\s*\]\]?\s*(#.*)?$")
+_NUMBER = re.compile(r"^(?P<head>\s*(?P<key>volume_loss_pct|trough_width_k)\s*=\s*)(?P<value>[^#\s]+)"
+                     r"(?P<rest>\s*(?:#(?P<comment>.*))?)$")
+_TEXT = re.compile(r"""^(?P<head>\s*(?P<key>[A-Za-z0-9_\-]+)\s*=\s*)(?P<value>"(?:[^"\\]|\\.)*"|'[^']*')"""
+                   r"(?P<rest>\s*(?:#.*)?)$")
+
+
+def _toml_number(value: float) -> str:
+    """A float as the fitted file writes it: 6 significant digits."""
+    return f"{value:.6g}"
+
+
+def _toml_text(value: str) -> str:
+    """A TOML basic string (JSON string escapes are valid TOML)."""
+    return json.dumps(value, ensure_ascii=False)
+
+
+def _is_path(key: str, value: str, folder: Path) -> bool:
+    if key in PATH_KEYS:
+        return True
+    try:
+        return bool(value) and not Path(value).is_absolute() and (folder / value).is_file()
+    except OSError:
+        return False
+
+
+def _blocks(lines: list[str]) -> list[dict]:
+    """The array-of-tables items of the file in order: kind ("drive", "reach", "other"), drive and reach counters,
+    the line of each number key and the first line."""
+    blocks = [{"kind": "other", "keys": {}, "first": 0}]
+    drive, reach = -1, -1
+    for n, text in enumerate(lines):
+        header = _HEADER.match(text)
+        if header:
+            name = header.group(2)
+            if header.group(1) == "[[" and name == "drives":
+                drive, reach = drive + 1, -1
+                blocks.append({"kind": "drive", "drive": drive, "keys": {}, "first": n})
+            elif header.group(1) == "[[" and name == "drives.reaches":
+                reach += 1
+                blocks.append({"kind": "reach", "drive": drive, "reach": reach, "keys": {}, "first": n})
+            else:
+                blocks.append({"kind": "other", "keys": {}, "first": n})
+            continue
+        number = _NUMBER.match(text)
+        if number:
+            blocks[-1]["keys"][number.group("key")] = n
+    return blocks
+
+
+def fitted_project_toml(project_path, fits: dict, out_dir=None) -> str:
+    """The project file's text with the fitted volume loss and K written in; every other line and comment kept.
+
+    Values go where `back_analysis` fitted them: a whole-drive fit (key (name, None)) sets the drive's
+    volume_loss_pct and trough_width_k and those of all its reaches; a per-reach fit sets the drive's values for key
+    (name, 0) and the n-th reach in chainage order for key (name, n). A trough_width_k line is added where the
+    drive or reach had none. Each changed line ends with a comment giving the standard error and the value it
+    replaced. Paths (keys `PATH_KEYS`, and any other text naming a file beside the project file) are rewritten
+    relative to `out_dir` when given, else as absolute paths, so the text can be saved in the output folder and read
+    with `settle.project.load_project` unchanged.
+
+    Raises
+    ------
+    InputError  When the file's layout hides a value from this line-by-line rewrite (e.g. an inline table); the
+                message says which, and the values to write by hand.
+    """
+    project_path = Path(project_path)
+    folder = project_path.parent
+    try:
+        text = project_path.read_text(encoding="utf-8")
+        doc = tomllib.loads(text)
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
+        raise InputError(f"{project_path}: cannot be read as a project file: {exc}") from None
+    lines = text.splitlines()
+    drives = doc.get("drives", [])
+    names = [item.get("name") for item in drives]
+    expected = {}  # (drive index, reach index in the file or None) -> value per key
+
+    for (name, key), fit in fits.items():
+        if name not in names:
+            raise InputError(f"{project_path}: no [[drives]] item is named {json.dumps(name)}; the fits belong to "
+                             "another project")
+        i = names.index(name)
+        reaches = drives[i].get("reaches", [])
+        order = sorted(range(len(reaches)), key=lambda j: reaches[j].get("from_chainage_m"))  # as the loader sorts
+        targets = [(i, None)] + [(i, j) for j in range(len(reaches))] if key is None else \
+            [(i, None)] if key == 0 else [(i, order[key - 1])]
+        for target in targets:
+            expected[target] = (fit, {"volume_loss_pct": fit.volume_loss_pct, "trough_width_k": fit.trough_width_k})
+
+    blocks = _blocks(lines)
+    inserts = {}
+    for block in blocks:
+        if block["kind"] == "other":
+            continue
+        target = (block["drive"], None if block["kind"] == "drive" else block["reach"])
+        if target not in expected:
+            continue
+        fit, values = expected[target]
+        for key, value in values.items():
+            se = fit.volume_loss_pct_se if key == "volume_loss_pct" else fit.trough_width_k_se
+            note = f"fitted to monitoring, standard error {se:.2g}" if math.isfinite(se) else \
+                "fitted to monitoring, no standard error"
+            if key in block["keys"]:
+                n = block["keys"][key]
+                match = _NUMBER.match(lines[n])
+                comment = match.group("comment")
+                was = f"; was {match.group('value')}" + (f" ({comment.strip()})" if comment and comment.strip() else "")
+                lines[n] = f"{match.group('head')}{_toml_number(value)}  # {note}{was}"
+            elif "volume_loss_pct" in block["keys"]:
+                n = block["keys"]["volume_loss_pct"]
+                indent = re.match(r"\s*", lines[n]).group(0)
+                inserts[n] = f"{indent}{key} = {_toml_number(value)}  # {note}; was not given (K of the layers)"
+
+    # Paths, line by line.
+    out = Path(out_dir) if out_dir is not None else None
+    for n, line in enumerate(lines):
+        match = _TEXT.match(line)
+        if not match:
+            continue
+        value = tomllib.loads(f"v = {match.group('value')}")["v"]
+        if not _is_path(match.group("key"), value, folder) or Path(value).is_absolute():
+            continue
+        target = (folder / value).resolve()
+        new = os.path.relpath(target, out.resolve()) if out is not None else str(target)
+        lines[n] = f"{match.group('head')}{_toml_text(Path(new).as_posix())}{match.group('rest')}"
+
+    for n in sorted(inserts, reverse=True):
+        lines.insert(n + 1, inserts[n])
+    header = ["# Back-analysed: volume loss and trough width factor fitted to monitoring readings by settle.",
+              f"# Made from {project_path.resolve().as_posix()}; paths point to its input files."]
+    new_text = "\n".join(header + lines) + "\n"
+    _check_fitted(project_path, doc, new_text, expected, folder, out)
+    return new_text
+
+
+def _check_fitted(project_path: Path, doc: dict, new_text: str, expected: dict, folder: Path, out) -> None:
+    """Read the rewritten text back: every fitted value and every path must be there."""
+    new = tomllib.loads(new_text)
+
+    def fail(what: str):
+        by_hand = "; ".join(f"[[drives]] #{i + 1}" + ("" if j is None else f" [[drives.reaches]] #{j + 1}") + ": "
+                            + ", ".join(f"{k} = {_toml_number(v)}" for k, v in values.items())
+                            for (i, j), (_, values) in sorted(expected.items(), key=lambda t: (t[0][0], t[0][1] or -1)))
+        raise InputError(f"{project_path}: cannot write the fitted values into a copy of this file: {what}; write "
+                         f"each key on a line of its own under its [[drives]] / [[drives.reaches]] header, or set "
+                         f"the values by hand: {by_hand}")
+
+    for (i, j), (_, values) in expected.items():
+        item = new["drives"][i] if j is None else new["drives"][i].get("reaches", [{}] * (j + 1))[j]
+        for key, value in values.items():
+            if item.get(key) != float(_toml_number(value)):
+                where = f"[[drives]] #{i + 1}" + ("" if j is None else f" [[drives.reaches]] #{j + 1}")
+                fail(f"{where} {key} was not found on a line of its own")
+
+    base = out.resolve() if out is not None else None
+
+    def walk(old, now, where):
+        if isinstance(old, dict):
+            for key, value in old.items():
+                if isinstance(value, str) and _is_path(key, value, folder) and not Path(value).is_absolute():
+                    got = now.get(key) if isinstance(now, dict) else None
+                    if not isinstance(got, str) or (Path(got) if base is None else base / got).resolve() != \
+                            (folder / value).resolve():
+                        fail(f"the path {where}{key} = {json.dumps(value)} could not be rewritten")
+                else:
+                    walk(value, now.get(key) if isinstance(now, dict) else None, f"{where}{key}.")
+        elif isinstance(old, list):
+            for k, value in enumerate(old):
+                walk(value, now[k] if isinstance(now, list) and k < len(now) else None, where)
+
+    walk(doc, new, "")
+
+
+# --------------------------------------------------------------------------------------- comparison, report
+@dataclass
+class Comparison:
+    """Each monitored point's latest reading against the prediction (arrays of one length, one per point)."""
+
+    point_id: np.ndarray  # str objects
+    drive: np.ndarray  # drive name (str objects) the reading is attributed to
+    x_m: np.ndarray
+    y_m: np.ndarray
+    depth_m: np.ndarray
+    date: np.ndarray  # datetime64[s] UTC of the latest reading
+    face_chainage_m: np.ndarray  # face of the drive at that reading
+    reading_mm: np.ndarray  # positive downward
+    predicted_mm: np.ndarray  # the project's model at that face
+    difference_mm: np.ndarray  # reading - predicted
+    fitted_mm: np.ndarray  # the fitted model at that face; NaN without fits
+    trigger_status: np.ndarray  # STATUS_CLEAR | STATUS_AMBER | STATUS_RED (str objects)
+
+
+def trigger_status(reading_mm, amber_mm: float, red_mm: float) -> np.ndarray:
+    """Status of readings against trigger levels, on the size of the movement (settlement or heave).
+
+    Parameters
+    ----------
+    reading_mm : array_like  Settlement readings, positive downward. [mm]
+    amber_mm, red_mm : float Trigger levels, 0 < amber < red. [mm]
+
+    Returns
+    -------
+    ndarray of str  STATUS_RED where |reading| >= red, else STATUS_AMBER where |reading| >= amber, else STATUS_CLEAR.
+    """
+    if not (isinstance(amber_mm, (int, float)) and math.isfinite(amber_mm) and amber_mm > 0):
+        raise InputError(f"[monitoring] amber_mm must be a number more than 0 mm; got {amber_mm!r}")
+    if not (isinstance(red_mm, (int, float)) and math.isfinite(red_mm) and red_mm > amber_mm):
+        raise InputError(f"[monitoring] red_mm must be a number more than amber_mm ({amber_mm:g} mm); got {red_mm!r}")
+    size = np.abs(np.asarray(reading_mm, dtype=float))
+    return np.where(size >= red_mm, STATUS_RED, np.where(size >= amber_mm, STATUS_AMBER, STATUS_CLEAR)).astype(object)
+
+
+def comparison(project: Project, readings: Readings, amber_mm: float, red_mm: float,
+               fits: dict | None = None) -> Comparison:
+    """Each point's latest reading, the project's prediction at that reading's face, the difference, the fitted
+    model's value (when `fits` are given) and the trigger status of the reading."""
+    status = trigger_status(readings.settlement_mm, amber_mm, red_mm)  # checks the levels first
+    order = np.lexsort((readings.date, readings.point_id.astype(str)))
+    ids = readings.point_id[order].astype(str)
+    last = order[np.append(ids[1:] != ids[:-1], True)]
+    latest = readings.subset(last)
+    ground = GroundModel(project.ground)
+    predicted = predicted_settlement_mm(project, latest, ground)
+    fitted = predicted_settlement_mm(apply_fits(project, fits), latest, ground) if fits else \
+        np.full(len(latest), np.nan)
+    return Comparison(
+        point_id=latest.point_id, drive=np.array([latest.drive_names[d] for d in latest.drive], dtype=object),
+        x_m=latest.x_m, y_m=latest.y_m, depth_m=latest.depth_m, date=latest.date,
+        face_chainage_m=latest.face_chainage_m, reading_mm=latest.settlement_mm, predicted_mm=predicted,
+        difference_mm=latest.settlement_mm - predicted, fitted_mm=fitted, trigger_status=status[last])
+
+
+def _plain(value):
+    """JSON-ready: NaN and infinities become None."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_plain(v) for v in value]
+    return value
+
+
+def fit_report(project: Project, readings: Readings, analysis: BackAnalysis) -> dict:
+    """The content of fit.json: the readings used and left out, each fit with its part of the drive, warnings and
+    the method's settings. NaN is written as null."""
+    by_name = {d.name: d for d in project.drives}
+    fits = []
+    for (name, key), fit in analysis.fits.items():
+        drive = by_name[name]
+        if key is None or key == 0:
+            span = {"from_chainage_m": None, "to_chainage_m": None}
+        else:
+            r = drive.reaches[key - 1]
+            span = {"from_chainage_m": r.from_chainage_m, "to_chainage_m": r.to_chainage_m}
+        part = "whole drive" if key is None else "outside the reaches" if key == 0 else f"reach {key}"
+        fits.append({"drive": name, "part": part, **span, **asdict(fit)})
+    return _plain({
+        "readings": {"file": readings.source, "kept": len(readings), "used": int(analysis.in_fit.sum()),
+                     "outliers": int(analysis.outlier.sum()), "rows_left_out": readings.left_out_count,
+                     "left_out": readings.left_out_messages()},
+        "fits": fits,
+        "warnings": list(analysis.warnings),
+        "method": {"robust_loss": "soft_l1", "robust_scale_mm": ROBUST_SCALE_MM,
+                   "outlier_limit_sigma": analysis.outlier_limit, "min_face_past_m": analysis.min_face_past_m,
+                   "sigma": "1.4826 x median absolute deviation of the robust residuals",
+                   "sigma_floor_mm": SIGMA_FLOOR_MM, "final_fit": "least squares without the outliers"},
+    })

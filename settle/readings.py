@@ -1,0 +1,307 @@
+"""Monitoring readings: the settlement readings CSV, read with checks row by row.
+
+Sign conventions (the project's): settlement positive downward (heave negative) [mm]; chainage along the 3-D axis of
+the drive [m]; depth below the ground surface [m]; dates in UTC.
+
+The file
+    UTF-8 CSV with one header line (see `settle.tables`; a row is named by its line number, header = line 1).
+
+    point_id         text, required: the monitoring point.
+    date             required: ISO 8601, a date (2024-03-01) or a date and time (2024-03-01T08:30, seconds and an
+                     offset such as +01:00 or Z optional). A time with an offset is converted to UTC; a time without
+                     one is taken as UTC as written. Kept to the second.
+    settlement_mm    number, required: the reading, positive downward, as the user refers it to its base reading.
+                     Readings are used as given: nothing is re-zeroed.
+    face_chainage_m  number, required: chainage of the face of the drive when the reading was taken; within the
+                     drive (its start to its end chainage).
+    drive            text: the name of the drive the reading is attributed to. Required (the column and every cell)
+                     when the project has several drives; optional with one (an empty cell then means that drive).
+    x, y             numbers [m, project CRS], optional: where the point is. A row with both cells empty takes the
+                     point's place from the project's [points] table (matched on point_id = id), or else from an
+                     earlier row of the same point. A row with x, y gives its own place, which must agree with the
+                     [points] table (when the point is there) and with the point's earlier rows within
+                     `SAME_PLACE_M`. Without x, y columns the project needs a [points] table.
+    depth_m          number >= 0, optional: depth of the point below the surface. An empty cell or no column takes
+                     the [points] table's depth, else the depth of the point's earlier rows, else 0 (a surface
+                     point); a depth that differs from the point's earlier rows by more than `SAME_PLACE_M` is
+                     left out.
+
+Rows left out (each reported by line number with the reason, and counted; never silently)
+    an empty point_id; an unknown or empty drive (several drives); a settlement_mm, face_chainage_m, x, y or depth_m
+    that is not a finite number (depth_m also when negative); a date that is not ISO 8601; a face_chainage_m outside
+    the drive; an unknown point (not in [points] and placed by no earlier row); only one of x, y; a place or depth
+    that disagrees with the [points] table or with the point's earlier rows; a second reading of a point at the same
+    date and time (duplicate); a reading dated before an earlier row of the same point (the file must list each
+    point's readings in date order; of two rows out of order, the later one in the file is left out); a face behind
+    the face of an earlier reading of the same point and drive (a face only advances).
+
+A missing required column, a missing drive column with several drives, no x, y and no [points] table, or a file in
+which every row is left out, is an InputError for the whole file.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError, where
+from .ground import GroundModel
+from .model import Project
+from .route import build_drive
+from .tables import read_csv, shown
+
+#: A point keeps its place: rows of one point (and the [points] table) must agree within this in plan. Our choice:
+#: larger than the horizontal movement of a monitored point, smaller than the spacing of points in an array. [m]
+SAME_PLACE_M = 0.1
+#: A face chainage this close outside the drive is taken as its end (rounding of the chainage written). [m]
+CHAINAGE_TOLERANCE_M = 1e-6
+REQUIRED = ("point_id", "date", "settlement_mm", "face_chainage_m")
+
+
+@dataclass(frozen=True)
+class LeftOut:
+    """A row of the readings file that was left out, and why."""
+
+    line: int  # line number in the file, header = line 1
+    reason: str
+
+
+@dataclass
+class Readings:
+    """Monitoring readings as read (arrays of one length, in the order of the file), and the rows left out."""
+
+    point_id: np.ndarray  # str objects
+    x_m: np.ndarray
+    y_m: np.ndarray
+    depth_m: np.ndarray  # below the ground surface
+    date: np.ndarray  # numpy datetime64[s], UTC
+    settlement_mm: np.ndarray  # positive downward
+    face_chainage_m: np.ndarray
+    drive: np.ndarray  # index into Project.drives
+    line: np.ndarray  # line number in the file (header = line 1)
+    drive_names: tuple[str, ...]  # the project's drive names, in project order
+    source: str = ""
+    left_out: tuple[LeftOut, ...] = ()
+
+    def __len__(self) -> int:
+        return len(self.point_id)
+
+    @property
+    def left_out_count(self) -> int:
+        return len(self.left_out)
+
+    def left_out_messages(self) -> list[str]:
+        """One line per row left out: `file row N: reason`."""
+        return [f"{where(self.source, row=r.line)}: {r.reason}" for r in self.left_out]
+
+    def subset(self, keep) -> "Readings":
+        """The readings selected by a boolean mask or index array (rows left out are kept as they are)."""
+        arrays = {k: getattr(self, k)[keep] for k in
+                  ("point_id", "x_m", "y_m", "depth_m", "date", "settlement_mm", "face_chainage_m", "drive", "line")}
+        return Readings(**arrays, drive_names=self.drive_names, source=self.source, left_out=self.left_out)
+
+
+def parse_date(text: str) -> np.datetime64:
+    """An ISO 8601 date or date and time as numpy datetime64[s] in UTC; ValueError when it is not one.
+
+    A time with a UTC offset is converted to UTC; one without is taken as UTC as written.
+
+    >>> str(parse_date("2024-03-01T09:30+01:00"))
+    '2024-03-01T08:30:00'
+    """
+    moment = datetime.fromisoformat(text)
+    if moment.tzinfo is not None:
+        moment = moment.astimezone(timezone.utc).replace(tzinfo=None)
+    return np.datetime64(moment.replace(microsecond=0), "s")
+
+
+def _number(cell: str, column: str) -> tuple[float | None, str | None]:
+    """(value, None) for a finite number, else (None, reason)."""
+    try:
+        value = float(cell)
+    except ValueError:
+        return None, f"{column} is not a number; got {shown(cell)}"
+    if not np.isfinite(value):
+        return None, f"{column} must be a finite number; got {shown(cell)}"
+    return value, None
+
+
+def read_readings(path, project: Project) -> Readings:
+    """Read a monitoring readings CSV against a project (see the module docstring for the columns and checks).
+
+    Parameters
+    ----------
+    path : str or Path   The readings CSV.
+    project : Project    The project the readings belong to: its drives (names, chainage) and [points] table.
+
+    Returns
+    -------
+    Readings  The rows kept, in file order, with `left_out` listing every row left out and why.
+
+    Raises
+    ------
+    InputError  For a problem with the whole file: a missing column, no way to place the points, no row kept.
+    """
+    path = Path(path)
+    table = read_csv(path)
+    table.require(*REQUIRED)
+    names = tuple(d.name for d in project.drives)
+    if len(names) > 1 and not table.has("drive"):
+        raise InputError(f"{path}: missing column \"drive\"; the project has {len(names)} drives "
+                         f"({', '.join(map(shown, names))}), so each reading must name its drive")
+    has_xy = table.has("x") or table.has("y")
+    if has_xy:
+        table.require("x", "y")
+    points = project.points
+    if not has_xy and points is None:
+        raise InputError(f"{path}: no x, y columns and the project has no [points] table to find the points in; "
+                         "give x and y (and depth_m for points below the surface)")
+    if len(table) == 0:
+        raise InputError(f"{path}: no readings below the header")
+
+    ground = GroundModel(project.ground)
+    label = project.path.name if project.path else "project"
+    span = []
+    for drive in project.drives:
+        geometry, _ = build_drive(drive, ground, label)
+        span.append((geometry.start_chainage_m, geometry.end_chainage_m))
+    table_place = {}
+    if points is not None:
+        table_place = {pid: (float(x), float(y), float(z))
+                       for pid, x, y, z in zip(points.ids, points.x_m, points.y_m, points.depth_m)}
+    column = {name: table.header.index(name) for name in table.header if name}
+
+    kept: dict[str, list] = {k: [] for k in ("point_id", "x", "y", "depth", "date", "s", "face", "drive", "line")}
+    left_out: list[LeftOut] = []
+    place_of: dict[str, tuple] = {}  # point -> x, y, line of the row that placed it, depth
+    last_of: dict[str, tuple[np.datetime64, int]] = {}  # point -> latest date, its line
+    seen: dict[tuple[str, np.datetime64], int] = {}  # (point, date) -> line
+    face_of: dict[tuple[str, int], tuple[float, int]] = {}  # (point, drive) -> face, line
+
+    for line, cells in zip(table.lines, table.cells):
+        line = int(line)
+        cell = {name: cells[c] for name, c in column.items()}
+
+        def leave(reason: str) -> None:
+            left_out.append(LeftOut(line, reason))
+
+        pid = cell["point_id"]
+        if pid == "":
+            leave("point_id is empty")
+            continue
+        if table.has("drive") and cell["drive"] != "":
+            if cell["drive"] not in names:
+                leave(f"drive {shown(cell['drive'])} is not a drive of the project; drives: "
+                      f"{', '.join(map(shown, names))}")
+                continue
+            d = names.index(cell["drive"])
+        elif len(names) > 1:
+            leave(f"drive is empty; the project has {len(names)} drives, so each reading must name its drive")
+            continue
+        else:
+            d = 0
+        s, problem = _number(cell["settlement_mm"], "settlement_mm")
+        if problem:
+            leave(problem)
+            continue
+        face, problem = _number(cell["face_chainage_m"], "face_chainage_m")
+        if problem:
+            leave(problem)
+            continue
+        lo, hi = span[d]
+        if not lo - CHAINAGE_TOLERANCE_M <= face <= hi + CHAINAGE_TOLERANCE_M:
+            leave(f"face_chainage_m {face:g} is outside drive {shown(names[d])} (chainage {lo:.2f} to {hi:.2f} m)")
+            continue
+        face = min(max(face, lo), hi)
+        try:
+            date = parse_date(cell["date"])
+        except ValueError:
+            leave(f"date {shown(cell['date'])} is not an ISO 8601 date (YYYY-MM-DD, optionally with a time "
+                  "THH:MM[:SS] and an offset such as +01:00 or Z)")
+            continue
+
+        # Where the point is.
+        listed = table_place.get(pid)
+        placed = place_of.get(pid)
+        xy_cells = (cell.get("x", ""), cell.get("y", ""))
+        if xy_cells == ("", "") and listed is None and placed is not None:
+            x, y = placed[0], placed[1]  # placed by an earlier row of the file
+        elif xy_cells == ("", ""):
+            if listed is None:
+                known = "the project has no [points] table" if points is None else \
+                    f"it is not in the [points] table ({points.source})"
+                leave(f"point {shown(pid)}: the row gives no x, y and {known}")
+                continue
+            x, y = listed[0], listed[1]
+        elif "" in xy_cells:
+            leave(f"point {shown(pid)}: give both x and y, or neither (to take them from the [points] table)")
+            continue
+        else:
+            x, problem = _number(xy_cells[0], "x")
+            y, problem_y = _number(xy_cells[1], "y")
+            if problem or problem_y:
+                leave(problem or problem_y)
+                continue
+            if listed is not None and np.hypot(x - listed[0], y - listed[1]) > SAME_PLACE_M:
+                leave(f"point {shown(pid)}: x, y are {np.hypot(x - listed[0], y - listed[1]):.3f} m from its place "
+                      f"in the [points] table ({points.source}); a point keeps its place (within {SAME_PLACE_M:g} m)")
+                continue
+        if placed is not None and np.hypot(x - placed[0], y - placed[1]) > SAME_PLACE_M:
+            leave(f"point {shown(pid)}: x, y are {np.hypot(x - placed[0], y - placed[1]):.3f} m from its place on "
+                  f"row {placed[2]}; a point keeps its place (within {SAME_PLACE_M:g} m)")
+            continue
+        depth_cell = cell.get("depth_m", "")
+        if depth_cell != "":
+            depth, problem = _number(depth_cell, "depth_m")
+            if problem or depth < 0.0:
+                leave(problem or f"depth_m must be at least 0 (below the ground surface); got {shown(depth_cell)}")
+                continue
+        else:
+            depth = listed[2] if listed is not None else placed[3] if placed is not None else 0.0
+        if placed is not None and abs(depth - placed[3]) > SAME_PLACE_M:
+            leave(f"point {shown(pid)}: depth_m {depth:g} differs from its depth on row {placed[2]} ({placed[3]:g} m); "
+                  f"a point keeps its place (within {SAME_PLACE_M:g} m)")
+            continue
+
+        # Order, duplicates and the face.
+        if (pid, date) in seen:
+            leave(f"point {shown(pid)} already has a reading dated {date} (row {seen[(pid, date)]}); duplicate")
+            continue
+        last = last_of.get(pid)
+        if last is not None and date < last[0]:
+            leave(f"date {date} is before the reading of point {shown(pid)} on row {last[1]} ({last[0]}); a point's "
+                  "readings must be listed in date order")
+            continue
+        before = face_of.get((pid, d))
+        if before is not None and face < before[0] - CHAINAGE_TOLERANCE_M:
+            leave(f"face_chainage_m {face:g} is behind the face of the earlier reading of point {shown(pid)} on row "
+                  f"{before[1]} ({before[0]:g} m); the face of a drive only advances")
+            continue
+
+        place_of.setdefault(pid, (x, y, line, depth))
+        last_of[pid] = (date, line)
+        seen[(pid, date)] = line
+        face_of[(pid, d)] = (face, line)
+        for key, value in (("point_id", pid), ("x", x), ("y", y), ("depth", depth), ("date", date), ("s", s),
+                           ("face", face), ("drive", d), ("line", line)):
+            kept[key].append(value)
+
+    if not kept["line"]:
+        first = f"; first: {where(path, row=left_out[0].line)}: {left_out[0].reason}" if left_out else ""
+        raise InputError(f"{path}: all {len(left_out)} readings were left out{first}")
+    return Readings(
+        point_id=np.array(kept["point_id"], dtype=object),
+        x_m=np.array(kept["x"], dtype=float),
+        y_m=np.array(kept["y"], dtype=float),
+        depth_m=np.array(kept["depth"], dtype=float),
+        date=np.array(kept["date"], dtype="datetime64[s]"),
+        settlement_mm=np.array(kept["s"], dtype=float),
+        face_chainage_m=np.array(kept["face"], dtype=float),
+        drive=np.array(kept["drive"], dtype=int),
+        line=np.array(kept["line"], dtype=int),
+        drive_names=names,
+        source=str(path),
+        left_out=tuple(left_out),
+    )
