@@ -184,7 +184,7 @@ def readings_frame(comparison, crs: str) -> gpd.GeoDataFrame:
                "reading_mm": comparison.reading_mm, "predicted_mm": comparison.predicted_mm,
                "difference_mm": comparison.difference_mm, "fitted_mm": comparison.fitted_mm,
                "trigger_status": pd.Series(comparison.trigger_status, dtype=str)}
-    columns["trigger_class"] = _status_class(comparison.trigger_status, (STATUS_CLEAR, STATUS_AMBER, STATUS_RED))
+    columns["status_class"] = _status_class(comparison.trigger_status, (STATUS_CLEAR, STATUS_AMBER, STATUS_RED))
     return _frame(columns, shapely.points(comparison.x_m, comparison.y_m), crs, "readings")
 
 

@@ -445,6 +445,11 @@ def layer_style(name: str, frame, levels_mm=None) -> LayerStyle | None:
     if name == "face_stations":
         return status_style(frame, name, face_stations.STATUSES, FACE_SYMBOLS,
                             "face-check stations, by support window status")
+    if name == "readings":
+        from settle.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
+
+        return status_style(frame, name, (STATUS_CLEAR, STATUS_AMBER, STATUS_RED), FACE_SYMBOLS,
+                            "monitoring points, latest reading against the trigger levels")
     if name in SINGLE_SYMBOLS:
         label, symbol = SINGLE_SYMBOLS[name]
         return LayerStyle(name, None, (StyleClass(None, label, symbol),), label)

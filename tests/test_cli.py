@@ -218,7 +218,8 @@ def test_demo_styles_inside_and_beside_the_geopackage(demo_run):
         rows = con.execute("SELECT f_table_schema, f_table_name, f_geometry_column FROM layer_styles").fetchall()
         kind = con.execute("SELECT data_type FROM gpkg_contents WHERE table_name = 'layer_styles'").fetchone()
     assert kind == ("attributes",)
-    assert {name for _, name, _ in rows} >= {"settlement_bands", "buildings", "utilities", "face_stations"}
+    assert {name for _, name, _ in rows} >= {"settlement_bands", "buildings", "utilities", "face_stations",
+                                             "readings"}
     assert all(schema == "" and column == "geom" for schema, _, column in rows)  # what QGIS looks up
     for name in ("settlement_bands", "buildings", "utilities", "face_stations"):
         assert (out / f"ostrey-{name}.qml").exists() and (out / f"ostrey-{name}.sld").exists()
