@@ -40,12 +40,11 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pyogrio
 import pyproj
 import shapely
 
 from .errors import InputError
-from .tables import GIS_SUFFIXES, choose_layer, listing, transformation_notes, shown
+from .tables import GIS_SUFFIXES, listing, project_transformer, read_gis_layer, shown
 
 #: E/G for each structure type, used when the project file gives no table of its own.
 #: masonry 2.6: Burland & Wroth (1974) for masonry bearing walls (methods.md section 5.1, from memory there); it is
@@ -143,23 +142,10 @@ def read_buildings(path, project_crs: str, defaults: BuildingDefaults | None = N
     if path.suffix.lower() not in GIS_SUFFIXES:
         raise InputError(f"{path}: building footprints must be a GIS polygon layer ({', '.join(GIS_SUFFIXES)}); "
                          f"got a {path.suffix or 'file without suffix'}")
-    layer = choose_layer(path, defaults.layer, f"{key_prefix} layer")
-    source = f"{path} layer {shown(layer)}"
-    try:
-        frame = pyogrio.read_dataframe(path, layer=layer)
-    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
-        raise InputError(f"{source}: cannot be read: {exc}") from None
-    if len(frame) == 0:
-        raise InputError(f"{source}: the layer has no features")
+    frame, source = read_gis_layer(path, defaults.layer, f"{key_prefix} layer")
     geoms = np.asarray(frame.geometry.values, dtype=object)
-    notes = []
-    target = pyproj.CRS.from_user_input(project_crs)
-    if frame.crs is None:
-        notes.append(f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}")
-    elif not frame.crs.equals(target, ignore_axis_order=True):
-        notes.extend(transformation_notes(frame.crs, target, source))
-        transformer = pyproj.Transformer.from_crs(frame.crs, target, always_xy=True)
-
+    transformer, notes = project_transformer(frame.crs, project_crs, source)
+    if transformer is not None:
         def move(xy):
             x, y = transformer.transform(xy[:, 0], xy[:, 1])
             return np.column_stack([x, y])

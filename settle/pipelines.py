@@ -450,7 +450,6 @@ def assess_utilities(utilities: Utilities, movements: Callable[..., Movements],
     around the peaks; take the largest demand of each check per pipe; divide by the allowable values. Assumptions in
     the module docstring.
     """
-    n = len(utilities)
     lines = _Lines(utilities)
     pipe, s, step = lines.uniform(options.sample_spacing_m)
     values = _evaluate(lines, utilities, pipe, s, movements, options)

@@ -341,6 +341,44 @@ def transformation_notes(source_crs, target_crs, source: str) -> list[str]:
             "install the PROJ grids, if that matters here"]
 
 
+def read_gis_layer(path: Path, layer: str | None, layer_key: str, fid_as_index: bool = False):
+    """The chosen layer of a GIS file, read with pyogrio: (GeoDataFrame, source label for messages).
+
+    With `fid_as_index` the frame is indexed by the features' ids in the file (what a GIS shows), else 0..n-1.
+    An unreadable or empty layer is an InputError naming the file and layer.
+    """
+    chosen = choose_layer(path, layer, layer_key)
+    source = f"{path} layer {shown(chosen)}"
+    try:
+        frame = pyogrio.read_dataframe(path, layer=chosen, fid_as_index=fid_as_index)
+    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
+        raise InputError(f"{source}: cannot be read: {exc}") from None
+    if len(frame) == 0:
+        raise InputError(f"{source}: the layer has no features")
+    return frame, source
+
+
+def project_transformer(layer_crs, project_crs: str, source: str):
+    """(transformer from the layer's CRS to the project CRS, notes for the user).
+
+    The transformer is None when the layer is in the project CRS already, or has no CRS (then taken to be in it, with
+    a note). A transformation PROJ cannot set up is an InputError.
+    """
+    target = pyproj.CRS.from_user_input(project_crs)
+    if layer_crs is None:
+        return None, [f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}"]
+    if layer_crs.equals(target, ignore_axis_order=True):
+        return None, []
+    notes = transformation_notes(layer_crs, target, source)
+    try:
+        with python_warnings.catch_warnings():
+            python_warnings.simplefilter("ignore")
+            return pyproj.Transformer.from_crs(layer_crs, target, always_xy=True), notes
+    except pyproj.exceptions.ProjError as exc:
+        raise InputError(f"{source}: cannot be transformed from the layer's CRS ({layer_crs.to_string()}) to the "
+                         f"project CRS {project_crs}: {exc}") from None
+
+
 def read_alignment_gis(path, project_crs: str, z_means: str = "axis", layer: str | None = None,
                        feature: str | None = None, layer_key: str = "alignment_layer",
                        feature_key: str = "alignment_feature") -> Alignment:
@@ -355,15 +393,7 @@ def read_alignment_gis(path, project_crs: str, z_means: str = "axis", layer: str
     feature : str or None   Value of the `name` attribute of the line to use; None = the layer's only feature.
     layer_key, feature_key : str  Project-file keys named in messages.
     """
-    path = Path(path)
-    chosen = choose_layer(path, layer, layer_key)
-    source = f"{path} layer {shown(chosen)}"
-    try:
-        frame = pyogrio.read_dataframe(path, layer=chosen)
-    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
-        raise InputError(f"{source}: cannot be read: {exc}") from None
-    if len(frame) == 0:
-        raise InputError(f"{source}: the layer has no features")
+    frame, source = read_gis_layer(Path(path), layer, layer_key)
     geometry = _choose_feature(frame, source, feature, feature_key)
     if feature is not None:
         source += f" feature {shown(feature)}"
@@ -372,14 +402,9 @@ def read_alignment_gis(path, project_crs: str, z_means: str = "axis", layer: str
     bad = ~np.isfinite(xyz).all(axis=1)
     if bad.any():
         raise InputError(f"{source} {labels[int(np.argmax(bad))]}: a coordinate is not a number")
-    notes = []
-    target = pyproj.CRS.from_user_input(project_crs)
-    if frame.crs is None:
-        notes.append(f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}")
-    elif not frame.crs.equals(target, ignore_axis_order=True):
-        notes.extend(transformation_notes(frame.crs, target, source))
+    transformer, notes = project_transformer(frame.crs, project_crs, source)
+    if transformer is not None:
         try:
-            transformer = pyproj.Transformer.from_crs(frame.crs, target, always_xy=True)
             x, y = transformer.transform(xyz[:, 0], xyz[:, 1])
         except pyproj.exceptions.ProjError as exc:
             raise InputError(f"{source}: cannot be transformed from the layer's CRS ({frame.crs.to_string()}) to "

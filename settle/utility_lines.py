@@ -36,18 +36,15 @@ from __future__ import annotations
 
 import difflib
 import math
-import warnings as python_warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
 import numpy as np
-import pyogrio
-import pyproj
 import shapely
 
 from .errors import InputError
-from .tables import GIS_SUFFIXES, PLAN_TOLERANCE_M, choose_layer, listing, transformation_notes, shown
+from .tables import GIS_SUFFIXES, PLAN_TOLERANCE_M, listing, project_transformer, read_gis_layer, shown
 
 VERTICALS = ("depth", "axis")  # depth_m attribute | Z is the pipe axis level
 SUFFIXES = tuple(s for s in GIS_SUFFIXES if s != ".shp")  # shapefiles cut attribute names to 10 characters
@@ -378,14 +375,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
         raise InputError(f"{key} file: {path} is not a GIS line file; give one of {', '.join(SUFFIXES)}")
     if not path.exists():
         raise InputError(f"{key} file: {path} does not exist")
-    chosen = choose_layer(path, options.layer, f"{key} layer")
-    source = f"{path} layer {shown(chosen)}"
-    try:
-        frame = pyogrio.read_dataframe(path, layer=chosen, fid_as_index=True)
-    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
-        raise InputError(f"{source}: cannot be read: {exc}") from None
-    if len(frame) == 0:
-        raise InputError(f"{source}: the layer has no features")
+    frame, source = read_gis_layer(path, options.layer, f"{key} layer", fid_as_index=True)
     columns = [c for c in frame.columns if c != frame.geometry.name]
     required = REQUIRED_ATTRIBUTES + (("depth_m",) if options.vertical == "depth" else ())
     for name in required:
@@ -398,20 +388,7 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
     if options.vertical == "axis" and options.surface_level is None:
         raise ValueError("read_utilities: vertical = 'axis' needs options.surface_level")
 
-    notes = []
-    target = pyproj.CRS.from_user_input(project_crs)
-    transformer = None
-    if frame.crs is None:
-        notes.append(f"{source} has no CRS; its coordinates are taken to be in the project CRS {project_crs}")
-    elif not frame.crs.equals(target, ignore_axis_order=True):
-        notes.extend(transformation_notes(frame.crs, target, source))
-        try:
-            with python_warnings.catch_warnings():
-                python_warnings.simplefilter("ignore")
-                transformer = pyproj.Transformer.from_crs(frame.crs, target, always_xy=True)
-        except pyproj.exceptions.ProjError as exc:
-            raise InputError(f"{source}: cannot be transformed from the layer's CRS ({frame.crs.to_string()}) to the "
-                             f"project CRS {project_crs}: {exc}") from None
+    transformer, notes = project_transformer(frame.crs, project_crs, source)
 
     ids, materials, lines, depths, labels = [], [], [], [], []
     numbers = {name: [] for name in ("outer_diameter_mm", "segment_length_m", "bending_reduction_factor")

@@ -4,7 +4,7 @@ import pytest
 from settle.assessment import Assessment
 from settle.project import load_project
 
-from .test_project import BASE, edit, fails, site  # noqa: F401  (site is a fixture)
+from .test_project import edit, fails, site  # noqa: F401  (site is a fixture)
 
 STRENGTHS = {
     'behaviour = "granular"\n': 'behaviour = "granular"\nfriction_angle_deg = 30\ncohesion_kpa = 0\n',
