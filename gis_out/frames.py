@@ -5,6 +5,8 @@ Layers and fields (the names are part of the output format; GIS projects refer t
 - `route`             LineString Z per drive: drive, start_chainage_m, end_chainage_m, length_m, outer_diameter_m,
                       face_chainage_m (NULL when the drive is complete), excavated_to_m, min_cover_m,
                       min_axis_depth_m, lost_volume_m3.
+- `route_profile`     Point every metre of chainage along each drive's axis: drive, chainage_m, ground_level_m,
+                      axis_level_m, cover_m (the ground surface model; river beds are in face_stations).
 - `grid`              Point per grid node kept by the run: settlement_mm, ux_mm, uy_mm, strain_max_ue, strain_min_ue,
                       tilt, horizontal_mm, strain_max_azimuth_deg.
 - `points`            Point per reporting point: id, depth_m, then the fields of `grid`. Absent when the run had no
@@ -49,6 +51,7 @@ GEOMETRY_TYPES = {
     "buildings": "MultiPolygon",
     "building_walls": "LineString",
     "readings": "Point",
+    "route_profile": "Point",
     "utilities": "LineString",
     "utility_critical_points": "Point",
 }
@@ -151,7 +154,9 @@ def face_frame(all_stations, crs: str) -> gpd.GeoDataFrame:
 
     from settle.face_stations import STATUSES
 
-    parts = [pd.DataFrame(face_station_fields(st)) for st in all_stations]
+    parts = [pd.DataFrame({**face_station_fields(st), "axis_level_m": st.axis_level_m,
+                           "ground_level_m": st.ground_level_m, "surface_level_m": st.surface_level_m,
+                           "water_level_m": st.water_level_m}) for st in all_stations]
     columns = pd.concat(parts, ignore_index=True)
     columns["status_class"] = _status_class(columns["status"], STATUSES)
     xy = np.concatenate([np.column_stack([st.x_m, st.y_m]) for st in all_stations])
@@ -172,6 +177,24 @@ def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFram
     for name in summaries:
         route[name] = summaries[name].to_numpy()
     return route
+
+
+def profile_frame(drives: list[DriveResult], crs: str) -> gpd.GeoDataFrame:
+    """Points along every drive's axis in plan, every metre and at every vertex: drive, chainage_m, ground_level_m
+    (the ground surface model; not the river bed), axis_level_m, cover_m. For longitudinal sections."""
+    from settle.route import position_at
+
+    parts = []
+    for d in drives:
+        xyz = position_at(d.axis_xyz_m, d.chainage_m, d.profile_chainage_m)
+        parts.append(pd.DataFrame({"drive": d.name, "chainage_m": d.profile_chainage_m,
+                                   "ground_level_m": d.profile_ground_m, "axis_level_m": d.profile_axis_m,
+                                   "cover_m": d.profile_ground_m - d.profile_axis_m - d.outer_diameter_m / 2.0,
+                                   "x": xyz[:, 0], "y": xyz[:, 1]}))
+    table = pd.concat(parts, ignore_index=True)
+    points = shapely.points(table.pop("x").to_numpy(), table.pop("y").to_numpy())
+    table["drive"] = table["drive"].astype(str)
+    return _frame({k: table[k].to_numpy() for k in table}, points, crs, "route_profile")
 
 
 def readings_frame(comparison, crs: str) -> gpd.GeoDataFrame:
@@ -216,7 +239,8 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     project = result.project
     crs = project.crs
     levels_where = where(project.path, "[output] contour_levels_mm")
-    layers = {"route": route_frame(result.drives, crs), "grid": grid_frame(result.grid, crs)}
+    layers = {"route": route_frame(result.drives, crs), "route_profile": profile_frame(result.drives, crs),
+              "grid": grid_frame(result.grid, crs)}
     if result.points is not None:
         layers["points"] = points_frame(result.points, result.point_ids, crs)
     levels = project.output.contour_levels_mm

@@ -60,10 +60,28 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("project", metavar="PROJECT.toml", help="the project file")
     run.add_argument("--out", metavar="DIR", required=True, help="folder for the outputs (created if missing)")
     run.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    run.add_argument("--report", action="store_true",
+                     help="also write DIR/<stem>-report.pdf, the assessment report (as `settle report` does)")
     run.add_argument("--readings", metavar="READINGS.csv",
                      help="monitoring readings: adds the `readings` layer (latest reading, prediction, difference, "
                           "trigger status against [monitoring] amber_mm and red_mm) and a figure per monitored "
                           "cross-section")
+
+    report = commands.add_parser(
+        "report",
+        help="write the PDF assessment report of a finished run, without recomputing",
+        description=(
+            "Write DIR/<stem>-report.pdf from the outputs a finished `settle run PROJECT.toml --out DIR` left in "
+            "DIR (GeoPackage and summary.json), with the inputs read from PROJECT.toml: title block, inputs and "
+            "where they came from, methods with their references, results with figures and tables, assumptions and "
+            "the cautions of the trade. Nothing is recomputed.\n\n" + CAUTION
+        ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    report.add_argument("project", metavar="PROJECT.toml", help="the project file the run was made from")
+    report.add_argument("--out", metavar="DIR", required=True, help="the run's output folder")
+    report.add_argument("--date", metavar="YYYY-MM-DD",
+                        help="the date printed in the report (default: the date the run wrote its GeoPackage)")
 
     fit = commands.add_parser(
         "fit",
@@ -140,10 +158,14 @@ def _run(args) -> int:
         outputs.update(_write_face(result, out))
     if monitoring:
         outputs["readings_sections"] = _write_sections(project, *monitoring, out)
+    if args.report:
+        outputs["report"] = f"{stem}-report.pdf"
     summary = summarise(result, outputs=outputs)
     if monitoring:
         summary["readings"] = _readings_summary(layers["readings"], monitoring[0])
     gis_out.write_text_atomic(summary_path, json.dumps(summary, indent=2) + "\n")
+    if args.report:
+        _write_report(project, out, stem)
 
     if not args.quiet:
         if monitoring:
@@ -154,6 +176,23 @@ def _run(args) -> int:
         from .terminal import summary_table
 
         print(summary_table(summary, out))
+    return 0
+
+
+def _write_report(project, out: Path, stem: str, date=None) -> Path:
+    from gis_out.report import write_report
+
+    return write_report(out, stem, date, project=project,
+                        sections_chainage_m=list(project.output.sections_chainage_m) or None)
+
+
+def _report(args) -> int:
+    """`settle report`: the PDF from a finished run's outputs."""
+    from .project import load_project
+
+    project = load_project(args.project)
+    path = _write_report(project, Path(args.out), Path(args.project).stem, args.date)
+    print(f"wrote {path}")
     return 0
 
 
@@ -304,6 +343,8 @@ def main(argv=None) -> int:
             return _run(args)
         if args.command == "fit":
             return _fit(args)
+        if args.command == "report":
+            return _report(args)
     except InputError as exc:
         print(f"settle: error: {exc}", file=sys.stderr)
         return InputError.exit_status

@@ -99,6 +99,7 @@ class Output:
     grid_threshold_mm: float = 0.1  # grid keeps every node whose settlement reaches this
     precision_mm: float = 0.001  # contributions smaller than this are not evaluated (see DEVELOPERS.md)
     settlement_geotiff: bool = False  # also write <stem>-settlement.tif (needs the raster extra)
+    sections_chainage_m: tuple[float, ...] = ()  # transverse sections of the report; () = where settlement peaks
 
 
 @dataclass(frozen=True)

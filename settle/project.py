@@ -125,7 +125,8 @@ BUILDING_KEYS = ("file",) + BUILDING_READ_KEYS + (
 MONITORING_KEYS = ("amber_mm", "red_mm")
 UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
-OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm", "settlement_geotiff")
+OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm", "settlement_geotiff",
+               "sections_chainage_m")
 
 K_RANGE = dict(ge=0.1, le=1.5)  # trough width factor K [-]
 VOLUME_LOSS_RANGE = dict(gt=0.0, le=20.0)  # [%]
@@ -466,8 +467,16 @@ def _output(table: dict, where: str) -> Output:
     if geotiff and importlib.util.find_spec("rasterio") is None:
         raise InputError(f'{where}: settlement_geotiff = true needs rasterio; install it with pip install -e ".[raster]" '
                          "or set settlement_geotiff = false")
+    sections = ()
+    if "sections_chainage_m" in table:
+        value = table["sections_chainage_m"]
+        if not isinstance(value, list) or not value:
+            raise InputError(f"{where}: sections_chainage_m must be a non-empty list of chainages in metres, "
+                             f"e.g. [120, 295]; got {shown(value)}")
+        sections = tuple(_number({f"sections_chainage_m item {j}": v}, f"sections_chainage_m item {j}", where)
+                         for j, v in enumerate(value, start=1))
     return Output(grid_spacing_m=spacing, contour_levels_mm=levels, grid_threshold_mm=threshold,
-                  precision_mm=precision, settlement_geotiff=geotiff)
+                  precision_mm=precision, settlement_geotiff=geotiff, sections_chainage_m=sections)
 
 
 def _levels(table: dict, key: str, where: str) -> tuple[float, ...]:

@@ -104,6 +104,10 @@ class DriveResult:
     excavated_to_m: float  # chainage of the face used in the run (end of drive when complete)
     lost_volume_m3: float  # sum over the excavated length of VL x pi D^2/4
     element_count: int
+    # The profile along the axis, every metre of chainage and at every vertex (for sections and figures).
+    profile_chainage_m: np.ndarray = field(default_factory=lambda: np.empty(0))
+    profile_ground_m: np.ndarray = field(default_factory=lambda: np.empty(0))  # ground surface level
+    profile_axis_m: np.ndarray = field(default_factory=lambda: np.empty(0))  # axis level
 
     @property
     def start_chainage_m(self) -> float:

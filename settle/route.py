@@ -158,6 +158,9 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="") -> tuple[Dri
         excavated_to_m=face,
         lost_volume_m3=0.0,
         element_count=0,
+        profile_chainage_m=stations,
+        profile_ground_m=s_level,
+        profile_axis_m=at[:, 2],
     )
     return result, warnings
 

@@ -63,6 +63,7 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
             "nodes_reported": len(grid),
             "threshold_mm": p.output.grid_threshold_mm,
             "precision_mm": p.output.precision_mm,
+            "contour_levels_mm": list(p.output.contour_levels_mm),
         },
         "max_settlement": _peak(grid, grid.settlement_mm, "settlement_mm"),
         "max_tilt": _peak(grid, grid.tilt, "tilt", 6),

@@ -33,7 +33,8 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
     gpkg = out / "ostrey.gpkg"
     assert sorted(fiona.listlayers(gpkg)) == sorted(["layer_styles", "route", "grid", "settlement_bands", "settlement_lines", "points",
                                                      "face_stations", "utilities", "utility_critical_points",
-                                                     "buildings", "building_walls", "readings"])
+                                                     "buildings", "building_walls", "readings",
+                                                     "route_profile"])
     fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
     assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
     assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
@@ -273,3 +274,29 @@ def test_readings_need_trigger_levels(tmp_path):
     toml.write_text(re.sub(r"\[monitoring\][^\n]*\n", "", toml.read_text()))
     done = settle("run", toml, "--readings", DEMO / "cable_tunnel_readings.csv", "--out", tmp_path / "o")
     assert done.returncode == 2 and "[monitoring] amber_mm and red_mm" in done.stderr
+
+
+def test_report_from_a_finished_run_without_recomputing(demo_run, tmp_path, monkeypatch):
+    # `settle report` reads the outputs only: it must not call the engine.
+    import settle.assessment
+
+    _, good = demo_run
+    out = tmp_path / "out"
+    shutil.copytree(good, out)
+    monkeypatch.setattr(settle.assessment, "run", lambda *a, **k: pytest.fail("the report recomputed the run"))
+    from settle.cli import main
+
+    assert main(["report", str(DEMO / "ostrey.toml"), "--out", str(out), "--date", "2026-12-01"]) == 0
+    pdf = (out / "ostrey-report.pdf").read_bytes()
+    assert pdf.startswith(b"%PDF") and len(pdf) > 50_000
+
+
+def test_report_needs_a_finished_run(tmp_path):
+    done = settle("report", DEMO / "ostrey.toml", "--out", tmp_path)
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+
+
+def test_sections_chainage_must_be_numbers(tmp_path):
+    toml = _broken_copy(tmp_path, "grid_spacing_m = 1.0", 'grid_spacing_m = 1.0\nsections_chainage_m = "120"')
+    done = settle("run", toml, "--out", tmp_path / "o")
+    assert done.returncode == 2 and "sections_chainage_m must be a non-empty list" in done.stderr

@@ -1,0 +1,898 @@
+"""The assessment report of a finished run: `<out_dir>/<stem>-report.pdf` (matplotlib PdfPages).
+
+Written from the run's outputs only (the GeoPackage `<stem>.gpkg`, `summary.json`), never recomputing. The run's CSV
+tables (buildings.csv, utilities.csv, face_pressures.csv) list the same buildings, pipes and stations as the layers
+`buildings`, `utilities` and `face_stations`, so the tables here are read from the layers, and the CSVs are listed
+as outputs. The inputs section also lists the project file's ground layers, reaches and settings when the project is
+given (they are not in the outputs). Sections, numbered as in `SECTIONS`:
+
+1 Inputs                           drives, volume loss per reach, ground layers and parameters, water, settings,
+                                   each with where it came from (the project file and its keys);
+2 Methods and references           per assessment that ran, what it does and the published references (taken from
+                                   the docstrings of the engine's method modules);
+3 Results                          the key numbers, the figures (`gis_out.figures`), the buildings in damage category
+                                   2 and above, the utilities near or over their limits, the face stations with a
+                                   narrow or closed window, the counts behind each, the run's warnings;
+4 Assumptions, limits and cautions the limits of greenfield methods and the cautions of the trade.
+
+An assessment the run did not make (no buildings, no utilities, no face check) is reported as "not assessed".
+
+Reproducibility: the run date is the only date in the report (the date the GeoPackage was written, unless given);
+the PDF carries no creation time, so the same outputs and run date give the same file.
+
+Text: pages are laid out with `fig.text`. Where all of the report's text is in the Windows-1252 character set (the
+usual case), it is set in the PDF core fonts (Helvetica, Courier), which any PDF reader extracts as plain text;
+otherwise in the embedded DejaVu fonts with a Unicode map, so no character is lost.
+
+Units and signs as in the outputs: settlement positive downward [mm], horizontal strain tensile positive, pressures at
+the crown [kPa], chainage along the 3-D axis [m].
+"""
+from __future__ import annotations
+
+import datetime as dt
+import inspect
+import os
+import re
+import sqlite3
+import tempfile
+import textwrap
+import uuid
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
+import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
+from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
+
+from settle.errors import InputError  # noqa: E402
+
+from . import figures  # noqa: E402
+
+SECTIONS = ("1 Inputs", "2 Methods and references", "3 Results", "4 Assumptions, limits and cautions")
+BUILDING_REPORT_CATEGORY = 2  # buildings in this damage category and above are tabled
+UTILITY_REPORT_STATUSES = ("near limit", "exceeds")  # pipes with these statuses are tabled
+FACE_REPORT_STATUSES = ("narrow", "closed")  # face stations with these statuses are tabled
+FIGURE_DPI = 130
+
+A4 = (8.27, 11.69)  # [in]
+MARGIN_IN = 0.7
+TEXT_PT, MONO_PT = 9.0, 7.0
+WRAP_CHARS = 100  # characters per line of 9 pt text on the A4 text width
+MONO_CHARS = 116  # characters per line of 7 pt Courier on the A4 text width
+
+
+# ----------------------------------------------------------------------------------------------- the document
+@dataclass
+class Block:
+    """One piece of the report: kind is "title", "heading", "subheading", "text", "mono" (fixed-width lines),
+    "image" (a PNG with its caption) or "break" (a new page)."""
+
+    kind: str
+    text: str = ""
+    lines: list[str] = field(default_factory=list)
+    image: Path | None = None
+
+
+@dataclass
+class RunOutputs:
+    """What a finished run left in its folder, read once."""
+
+    out_dir: Path
+    stem: str
+    gpkg: Path
+    summary: dict
+    layers: set[str]
+    frames: dict  # layer name -> GeoDataFrame (route, buildings, utilities, face_stations when present)
+
+
+def read_outputs(out_dir, stem: str) -> RunOutputs:
+    """The GeoPackage and summary of a finished run; an InputError naming the file when one is missing."""
+    out = Path(out_dir)
+    gpkg = out / f"{stem}.gpkg"
+    summary = figures.read_summary(out / "summary.json")
+    layers = figures.layer_names(gpkg)
+    if "route" not in layers:
+        raise InputError(f"{gpkg}: has no route layer; is it the output of `settle run`?")
+    frames = {name: figures.read_layer(gpkg, name) for name in ("route", "buildings", "utilities", "face_stations")
+              if name in layers}
+    return RunOutputs(out, stem, gpkg, summary, layers, frames)
+
+
+def run_date_of(gpkg) -> dt.date:
+    """The date the run wrote its GeoPackage: the latest `last_change` of gpkg_contents (UTC)."""
+    try:
+        with sqlite3.connect(f"file:{Path(gpkg).resolve()}?mode=ro", uri=True) as con:
+            (stamp,) = con.execute("SELECT max(last_change) FROM gpkg_contents").fetchone()
+    except sqlite3.Error as exc:
+        raise InputError(f"{gpkg}: cannot read gpkg_contents for the run date ({exc})") from None
+    if not stamp:
+        raise InputError(f"{gpkg}: gpkg_contents has no last_change; give the run date")
+    return dt.date.fromisoformat(str(stamp)[:10])
+
+
+def _run_date(run_date, gpkg) -> dt.date:
+    if run_date is None:
+        return run_date_of(gpkg)
+    if isinstance(run_date, dt.datetime):
+        return run_date.date()
+    if isinstance(run_date, dt.date):
+        return run_date
+    try:
+        return dt.date.fromisoformat(str(run_date))
+    except ValueError:
+        raise InputError(f"run date must be a date as YYYY-MM-DD; got {run_date!r}") from None
+
+
+# ------------------------------------------------------------------------------------------ rows to report
+def buildings_to_report(buildings) -> pd.DataFrame:
+    """The buildings in damage category 2 and above, worst first (category, then tensile strain)."""
+    cat = figures.building_categories(buildings)
+    keep = cat >= BUILDING_REPORT_CATEGORY
+    rows = buildings[keep]
+    strain = (pd.to_numeric(rows["tensile_strain_pct"], errors="coerce").to_numpy(float)
+              if "tensile_strain_pct" in rows else np.full(len(rows), np.nan))
+    order = np.lexsort((-np.nan_to_num(strain, nan=-np.inf), -cat[keep]))  # the last key sorts first
+    return rows.iloc[order]
+
+
+def utilities_to_report(utilities) -> pd.DataFrame:
+    """The pipes near or over their limits (status "near limit" or "exceeds"), highest utilisation first."""
+    rows = utilities[utilities["status"].isin(UTILITY_REPORT_STATUSES)]
+    return rows.sort_values("utilisation", ascending=False, kind="stable")
+
+
+def face_stations_to_report(stations) -> pd.DataFrame:
+    """The face stations whose window is narrow or closed, in the order of the layer (drive, then chainage)."""
+    return stations[stations["status"].isin(FACE_REPORT_STATUSES)]
+
+
+# --------------------------------------------------------------------------------------------- formatting
+def _num(value, fmt: str) -> str:
+    """A number in the format, "-" where there is none."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return "-" if value is None or value is pd.NA else str(value)
+    return "-" if not np.isfinite(v) else format(v, fmt)
+
+
+def table_lines(columns: list[tuple[str, int, object]], rows: list[dict]) -> list[str]:
+    """Fixed-width table: columns are (title, width, how) where how is a format spec for numbers or None for text;
+    text wider than its column is cut with "...". Returns the header, a rule, then one line per row."""
+    def cell(value, width, how):
+        text = _num(value, how) if how else ("-" if value is None or value is pd.NA or
+                                               (isinstance(value, float) and np.isnan(value)) else str(value))
+        return text if len(text) <= width else text[:width - 3] + "..."
+
+    head = " ".join(f"{t:<{w}}" if not how else f"{t:>{w}}" for t, w, how in columns)
+    out = [head.rstrip(), "-" * len(head.rstrip())]
+    for r in rows:
+        out.append(" ".join(f"{cell(r.get(t), w, how):<{w}}" if not how else f"{cell(r.get(t), w, how):>{w}}"
+                            for t, w, how in columns).rstrip())
+    return out
+
+
+def _records(frame, mapping: dict) -> list[dict]:
+    """Rows of a frame as dicts keyed by table column titles: mapping is title -> field name (or a function)."""
+    out = []
+    for _, row in frame.iterrows():
+        out.append({title: (f(row) if callable(f) else row.get(f)) for title, f in mapping.items()})
+    return out
+
+
+def _one_in(value) -> str:
+    """A slope as "1/n"."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return "-"
+    return "-" if not np.isfinite(v) or v <= 0 else f"1/{1.0 / v:,.0f}"
+
+
+def docstring_references(module) -> list[str]:
+    """The entries of the References section of a module's docstring, keys dropped, continuation lines joined."""
+    doc = inspect.getdoc(module) or ""
+    m = re.search(r"^References\n-{3,}\n", doc, re.M)
+    if not m:
+        return []
+    entries: list[str] = []
+    for line in doc[m.end():].splitlines():
+        if line.startswith("["):
+            entries.append(re.sub(r"^\[[^\]]+\]\s*", "", line).strip())
+        elif line.startswith(" ") and line.strip() and entries:
+            entries[-1] += " " + line.strip()
+        else:
+            break
+    return entries
+
+
+def _name(path, project_dir: Path | None) -> str:
+    """A file of the project as the project file names it (relative to its folder where it lies inside it)."""
+    text = str(path)
+    parts = text.split(" layer ", 1)  # "<path> layer <name>" as the readers record it
+    p = Path(parts[0])
+    if project_dir is not None and p.is_absolute():
+        try:
+            p = p.relative_to(project_dir.resolve())
+        except ValueError:
+            p = Path(p.name)
+    return str(p) + (f" (layer {parts[1]})" if len(parts) > 1 else "")
+
+
+# ------------------------------------------------------------------------------------------ project inputs
+def project_inputs(project) -> dict:
+    """The inputs of a project as the report lists them: a JSON-ready dict (a candidate for summary.json).
+
+    Parameters
+    ----------
+    project : settle.model.Project   As `settle.load_project` returns it.
+
+    Returns
+    -------
+    dict  project_file; ground (surface, groundwater_level_m, layers with their parameters and keys); drives (with
+          their alignment file, diameters, volume loss, K, face, reaches and face-support reaches, and keys);
+          rivers; face options (as used); the files of buildings, utilities and points with their counts; output
+          settings. Lengths and levels in m, volume loss in %, strengths in kPa, shear modulus in MPa.
+    """
+    folder = Path(project.path).parent if project.path is not None else None
+    file = Path(project.path).name if project.path is not None else "(not read from a file)"
+    surface = project.ground.surface
+    if surface.level_m is not None:
+        surf = {"kind": "flat", "level_m": surface.level_m, "key": "[ground] surface_level_m"}
+    else:
+        surf = {"kind": "survey", "file": _name(surface.source, folder), "points": int(len(surface.points_xyz)),
+                "key": "[ground] surface_points"}
+    strengths = list(project.strengths) or [None] * len(project.ground.layers)
+    layers = []
+    for k, (layer, s) in enumerate(zip(project.ground.layers, strengths), start=1):
+        item = {"key": f"[[ground.layers]] #{k}", "name": layer.name, "top_level_m": layer.top_level_m,
+                "unit_weight_kn_m3": layer.unit_weight_kn_m3, "trough_width_k": layer.trough_width_k,
+                "behaviour": layer.behaviour}
+        if s is not None:
+            item.update(friction_angle_deg=s.friction_angle_deg, cohesion_kpa=s.cohesion_kpa,
+                        undrained_strength_kpa=s.undrained_strength_kpa, shear_modulus_mpa=s.shear_modulus_mpa)
+        layers.append(item)
+    drives = []
+    for k, d in enumerate(project.drives, start=1):
+        drives.append({
+            "key": f"[[drives]] #{k}", "name": d.name, "alignment": _name(d.source, folder),
+            "vertical": d.vertical, "outer_diameter_m": d.outer_diameter_m, "inner_diameter_m": d.inner_diameter_m,
+            "volume_loss_pct": d.volume_loss_pct, "trough_width_k": d.trough_width_k,
+            "face_chainage_m": d.face_chainage_m, "start_chainage_m": d.start_chainage_m,
+            "reaches": [{"key": f"[[drives.reaches]] #{j}", "from_chainage_m": r.from_chainage_m,
+                         "to_chainage_m": r.to_chainage_m, "volume_loss_pct": r.volume_loss_pct,
+                         "trough_width_k": r.trough_width_k} for j, r in enumerate(d.reaches, start=1)],
+            "face_support": [{"key": f"[[drives.face_support]] #{j}", "from_chainage_m": r.from_chainage_m,
+                              "to_chainage_m": r.to_chainage_m, "mode": r.mode}
+                             for j, r in enumerate(d.face_support, start=1)],
+        })
+    rivers = [{"key": f"[[rivers]] #{k}", "name": r.name, "drive": r.drive, "from_chainage_m": r.from_chainage_m,
+               "to_chainage_m": r.to_chainage_m, "bed_level_m": r.bed_level_m, "water_level_m": r.water_level_m}
+              for k, r in enumerate(project.rivers, start=1)]
+    face = None
+    if project.strengths:
+        from dataclasses import asdict
+
+        from settle.face_stations import FaceOptions
+
+        face = {k: v for k, v in asdict(project.face or FaceOptions()).items() if isinstance(v, (int, float, str))}
+    tables = {}
+    for name, obj, count in (("buildings", project.buildings, lambda o: len(o)),
+                             ("utilities", project.utilities, lambda o: len(o.ids)),
+                             ("points", project.points, lambda o: len(o.ids))):
+        tables[name] = None if obj is None else {"key": f"[{name}] file", "file": _name(obj.source, folder),
+                                                  "count": int(count(obj))}
+    out = project.output
+    return {
+        "project_file": file,
+        "ground": {"surface": surf, "groundwater_level_m": project.ground.groundwater_level_m,
+                   "groundwater_key": "[ground] groundwater_level_m", "layers": layers},
+        "drives": drives, "rivers": rivers, "face": face, **tables,
+        "output": {"grid_spacing_m": out.grid_spacing_m, "contour_levels_mm": list(out.contour_levels_mm),
+                   "grid_threshold_mm": out.grid_threshold_mm, "precision_mm": out.precision_mm},
+    }
+
+
+# ---------------------------------------------------------------------------------------------- sections
+def _title_blocks(run: RunOutputs, date: dt.date, inputs: dict | None) -> list[Block]:
+    s = run.summary
+    from settle import __version__
+
+    outputs = s.get("outputs", {})
+    files = [run.gpkg.name, "summary.json"] + [v for k, v in outputs.items() if k not in ("geopackage", "summary")
+                                               and isinstance(v, str)]
+    for k, v in outputs.items():
+        if isinstance(v, list):
+            files += [f"{len(v)} style files (.qml, .sld)"] if k == "styles" else [str(x) for x in v]
+    lines = [f"Run date: {date.isoformat()}",
+             f"Project file: {inputs['project_file'] if inputs else 'not given to the report'}",
+             f"Coordinate reference system: {s.get('crs', '-')}",
+             f"Outputs of the run: {', '.join(dict.fromkeys(files))}",
+             f"Written by settle {__version__} from the outputs of the run; nothing was recomputed."]
+    return [Block("title", "Ground movement assessment"), Block("title", s.get("project", run.stem)),
+            *[Block("text", t) for t in lines],
+            Block("subheading", "Contents"), Block("mono", lines=list(SECTIONS)),
+            Block("subheading", "Caution"),
+            Block("text", s.get("caution", "")),
+            Block("text", "Buildings in damage category 3 or above need a detailed assessment by a qualified engineer. "
+                          "Local codes and the responsible engineer decide what is acceptable.")]
+
+
+def _inputs_blocks(run: RunOutputs, inputs: dict | None) -> list[Block]:
+    b = [Block("break"), Block("heading", SECTIONS[0])]
+    route = run.frames["route"]
+    src = f"Source: the project file {inputs['project_file']}" if inputs else "Source: the route layer"
+    b.append(Block("subheading", "1.1 Drives"))
+    names = [f"D{k}  {d}" for k, d in enumerate(route["drive"], start=1)]
+    b.append(Block("mono", lines=names))
+    by_name = {d["name"]: d for d in inputs["drives"]} if inputs else {}
+    rows = []
+    for k, r in enumerate(route.itertuples(index=False), start=1):
+        d = by_name.get(r.drive, {})
+        rows.append({"drive": f"D{k}", "from m": r.start_chainage_m, "to m": r.end_chainage_m, "length m": r.length_m,
+                     "OD m": r.outer_diameter_m, "ID m": d.get("inner_diameter_m"), "VL %": d.get("volume_loss_pct"),
+                     "K": d.get("trough_width_k"), "face m": r.face_chainage_m, "min cover m": r.min_cover_m,
+                     "lost m3": r.lost_volume_m3})
+    cols = [("drive", 5, None), ("from m", 8, ".1f"), ("to m", 8, ".1f"), ("length m", 9, ".1f"),
+            ("OD m", 6, ".2f"), ("ID m", 6, ".2f"), ("VL %", 6, ".2f"), ("K", 5, ".2f"), ("face m", 8, ".1f"),
+            ("min cover m", 11, ".2f"), ("lost m3", 9, ".3f")]
+    b.append(Block("mono", lines=table_lines(cols, rows)))
+    b.append(Block("text", "VL: volume loss of the drive outside its reaches; K: trough width factor set for the "
+                           "whole drive (\"-\": from the ground layers); face: the face position of a drive under "
+                           "construction; lost m3: volume lost along the excavated length. " + src +
+                           (" ([[drives]] and their alignment files: "
+                            + "; ".join(f"D{k} {d['key']}, {d['alignment']}" for k, d in
+                                        enumerate(inputs["drives"], start=1)) + ")." if inputs else ".")))
+    if not inputs:
+        b.append(Block("text", "The project file was not given to the report, so the volume loss per reach, the "
+                               "ground layers and the settings, which are not in the run's outputs, are not listed "
+                               "here: give the project file to list them."))
+        return b
+    b.append(Block("subheading", "1.2 Volume loss per reach"))
+    rows = []
+    for k, d in enumerate(inputs["drives"], start=1):
+        rows.append({"drive": f"D{k}", "from m": None, "to m": None, "VL %": d["volume_loss_pct"],
+                     "K": d["trough_width_k"], "key": f"{d['key']} (outside its reaches)"})
+        for r in d["reaches"]:
+            rows.append({"drive": f"D{k}", "from m": r["from_chainage_m"], "to m": r["to_chainage_m"],
+                         "VL %": r["volume_loss_pct"], "K": r["trough_width_k"], "key": f"{d['key']} {r['key']}"})
+    b.append(Block("mono", lines=table_lines([("drive", 5, None), ("from m", 8, ".1f"), ("to m", 8, ".1f"),
+                                              ("VL %", 6, ".2f"), ("K", 5, ".2f"), ("key", 60, None)], rows)))
+    b.append(Block("subheading", "1.3 Ground and water"))
+    g = inputs["ground"]
+    surf = g["surface"]
+    b.append(Block("text", ("Ground surface: flat at {:.2f} m ({}).".format(surf["level_m"], surf["key"])
+                            if surf["kind"] == "flat" else
+                            f"Ground surface: triangulated through {surf['points']} survey points in {surf['file']} "
+                            f"({surf['key']}).") +
+                   f" Groundwater level {g['groundwater_level_m']:.2f} m ({g['groundwater_key']})."))
+    rows = [{"key": ly["key"].replace("[[ground.layers]] ", ""), "name": ly["name"], "top m": ly["top_level_m"],
+             "gamma kN/m3": ly["unit_weight_kn_m3"], "K": ly["trough_width_k"], "behaviour": ly["behaviour"],
+             "phi' deg": ly.get("friction_angle_deg"), "c' kPa": ly.get("cohesion_kpa"),
+             "cu kPa": ly.get("undrained_strength_kpa"), "G MPa": ly.get("shear_modulus_mpa")}
+            for ly in g["layers"]]
+    b.append(Block("mono", lines=table_lines(
+        [("key", 4, None), ("name", 26, None), ("top m", 7, ".2f"), ("gamma kN/m3", 11, ".1f"), ("K", 5, ".2f"),
+         ("behaviour", 9, None), ("phi' deg", 8, ".1f"), ("c' kPa", 7, ".1f"), ("cu kPa", 7, ".1f"),
+         ("G MPa", 6, ".1f")], rows)))
+    b.append(Block("text", "Layers from the top down, as [[ground.layers]] #n of the project file; each runs down to "
+                           "the next one's top. gamma: total unit weight; K: trough width factor; phi', c': "
+                           "effective strength; cu: undrained strength; G: shear modulus (\"-\": not given)."))
+    if inputs["rivers"]:
+        rows = [{"key": r["key"], "name": r["name"] or "-", "drive": r["drive"], "from m": r["from_chainage_m"],
+                 "to m": r["to_chainage_m"], "bed m": r["bed_level_m"], "water m": r["water_level_m"]}
+                for r in inputs["rivers"]]
+        b.append(Block("text", "Open water over the drives (water level: design high water):"))
+        b.append(Block("mono", lines=table_lines(
+            [("key", 13, None), ("name", 16, None), ("drive", 30, None), ("from m", 8, ".1f"), ("to m", 8, ".1f"),
+             ("bed m", 7, ".2f"), ("water m", 7, ".2f")], rows)))
+    b.append(Block("subheading", "1.4 Settings and other inputs"))
+    o = inputs["output"]
+    lines = [f"[output] grid_spacing_m = {o['grid_spacing_m']:g}; contour_levels_mm = "
+             f"{', '.join(f'{v:g}' for v in o['contour_levels_mm'])}; grid_threshold_mm = "
+             f"{o['grid_threshold_mm']:g}; precision_mm = {o['precision_mm']:g}"]
+    for name in ("buildings", "utilities", "points"):
+        t = inputs.get(name)
+        lines.append(f"[{name}] file = {t['file']} ({t['count']} read)" if t else f"[{name}]: none")
+    for k, d in enumerate(inputs["drives"], start=1):
+        for r in d["face_support"]:
+            lines.append(f"D{k} {r['key']}: {r['mode']} from {r['from_chainage_m']:g} to {r['to_chainage_m']:g} m")
+    if inputs.get("face"):
+        items = [f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in inputs["face"].items()]
+        lines.append("[face] as used (given, or the documented default): ")
+        lines += textwrap.wrap("; ".join(items), MONO_CHARS - 2, initial_indent="  ", subsequent_indent="  ")
+    b.append(Block("mono", lines=lines))
+    return b
+
+
+#: What each assessment does, in brief (the README and the docstrings of the modules named hold the detail), and
+#: the status of its formulas and values as those docstrings give it.
+METHODS = {
+    "greenfield": (
+        "settle.troughs",
+        "Greenfield ground movements. Transverse Gaussian trough (Peck 1969) with i = K z0 (O'Reilly & New 1982), K "
+        "weighted by layer thickness; three-dimensional trough from point sinks integrated exactly over straight "
+        "tunnel elements along the excavated length (Attewell & Woodman 1982; Attewell, Yeates & Selby 1986), which "
+        "conserves the lost volume; settlement is half its full value over the launch shaft and the face. Subsurface "
+        "troughs after Mair, Taylor & Bracegirdle (1993) in clay and Moh, Ju & Hwang (1996) in sand; horizontal "
+        "movements toward the axis and their strains after O'Reilly & New (1982).",
+        "Some coefficients are marked in the engine's documentation as taken from memory of the sources."),
+    "buildings": (
+        "settle.buildings",
+        "Building damage. Stage 1 screening on the greenfield settlement and slope over each footprint (Rankin 1988; "
+        "Mair, Taylor & Burland 1996): below 10 mm and 1/500, negligible risk. Stage 2: each wall a weightless "
+        "elastic deep beam following the greenfield profile (Burland & Wroth 1974; Burland 1995), split into "
+        "sagging and hogging parts, bending and diagonal strains combined with the average horizontal strain, and "
+        "the damage category from the limiting tensile strain (Boscardin & Cording 1989; Burland 1995). The "
+        "building takes its worst wall.",
+        "The deep-beam equations and the category limits are confirmed in published sources; the stage 1 limits are "
+        "from memory of Rankin (1988). A strain above 0.3 % is reported as category 4 (severe to very severe): no "
+        "strain criterion separates categories 4 and 5."),
+    "utilities": (
+        "settle.pipelines",
+        "Buried utilities. Each pipe follows the ground at its own depth: bending strain from the curvature of the "
+        "settlement along it, axial strain from the horizontal ground strain along its axis, their combination at "
+        "the extreme fibre, and for jointed pipes the joint rotation and opening over one pipe length at the worst "
+        "place (Attewell, Yeates & Selby 1986; Bracegirdle et al. 1996). Each demand is divided by its allowable "
+        "value; the largest ratio is the utilisation.",
+        "The default allowable values per material are indicative: none is a published value (common practice or "
+        "from memory, as the utilities table of the README says). The asset owner's limits govern."),
+    "face": (
+        "settle.face",
+        "Face support window. Minimum support at the crown: water pressure plus the wedge-and-silo support "
+        "(Anagnostou & Kovari 1994) with partial factors, and in cohesive ground the Broms & Bennermark (1967) "
+        "stability ratio. Maximum: the blow-out stress (total vertical stress at the crown) and the Delft "
+        "cavity-expansion fracture pressure (Luger & Hergarden 1988), each over its factor. The window is the "
+        "maximum less the minimum less twice the operating tolerance.",
+        "The engine's documentation marks the wedge-silo, Broms & Bennermark, blow-out and Delft formulas, and "
+        "several default factors, as written from memory of the sources; check them against the originals."),
+}
+
+
+def _methods_blocks(run: RunOutputs) -> list[Block]:
+    import importlib
+
+    b = [Block("break"), Block("heading", SECTIONS[1])]
+    ran = {"greenfield": True, "buildings": "buildings" in run.layers, "utilities": "utilities" in run.layers,
+           "face": "face_stations" in run.layers}
+    for n, (key, (module, text, status)) in enumerate(METHODS.items(), start=1):
+        title = text.split(".", 1)[0]
+        b.append(Block("subheading", f"2.{n} {title}"))
+        if not ran[key]:
+            b.append(Block("text", f"{title}: not assessed in this run."))
+            continue
+        b.append(Block("text", text.split(".", 1)[1].strip()))
+        b.append(Block("text", f"Status: {status}"))
+        refs = docstring_references(importlib.import_module(module))
+        if refs:
+            b.append(Block("text", f"References (from the docstring of {module}):"))
+            b += [Block("text", f"- {r}") for r in refs]
+    return b
+
+
+def _results_blocks(run: RunOutputs, figure_paths: list[tuple[Path, str]]) -> list[Block]:
+    s = run.summary
+    b = [Block("break"), Block("heading", SECTIONS[2]), Block("subheading", "3.1 Key numbers")]
+    lines = []
+    peak = s.get("max_settlement")
+    lines.append(f"Largest settlement on the grid: {peak['settlement_mm']:.1f} mm at x = {peak['x_m']:.1f}, "
+                 f"y = {peak['y_m']:.1f} m" if peak else "Largest settlement on the grid: no node above the threshold")
+    tilt = s.get("max_tilt")
+    if tilt:
+        lines.append(f"Largest tilt (ground slope): {tilt['tilt']:.4f} ({_one_in(tilt['tilt'])}) at x = "
+                     f"{tilt['x_m']:.1f}, y = {tilt['y_m']:.1f} m")
+    for key, word in (("max_tensile_strain", "tensile"), ("max_compressive_strain", "compressive")):
+        v = s.get(key)
+        if v:
+            lines.append(f"Largest {word} horizontal strain: {v['strain_ue']:.0f} microstrain at x = {v['x_m']:.1f}, "
+                         f"y = {v['y_m']:.1f} m")
+    vc = s.get("volume_check")
+    if vc:
+        lines.append(f"Volume check: surface trough {_num(vc.get('surface_trough_volume_m3'), '.3f')} m3 against "
+                     f"{_num(vc.get('lost_volume_m3'), '.3f')} m3 lost ({_num(vc.get('difference_pct'), '+.4f')} %)")
+    grid = s.get("grid", {})
+    lines.append(f"Grid: spacing {_num(grid.get('spacing_m'), 'g')} m, {grid.get('nodes_reported', '-')} nodes of "
+                 f"{_num(grid.get('threshold_mm'), 'g')} mm or more")
+    pts = s.get("points")
+    if pts:
+        top = pts.get("max_settlement")
+        lines.append(f"Reporting points: {pts['count']}" + (f"; largest settlement {top['settlement_mm']:.1f} mm at "
+                                                             f"{top['id']}" if top else ""))
+    b += [Block("text", t) for t in lines]
+    b.append(Block("text", "Settlement is positive downward; strain tensile positive; coordinates in the project "
+                           "CRS."))
+
+    b.append(Block("subheading", "3.2 Figures"))
+    b += [Block("text", f"Figure {k}. {caption}") for k, (_, caption) in enumerate(figure_paths, start=1)]
+    for k, (png, caption) in enumerate(figure_paths, start=1):
+        b.append(Block("image", f"Figure {k}. {caption}", image=png))
+
+    b += _building_blocks(run) + _utility_blocks(run) + _face_blocks(run)
+    b.append(Block("subheading", "3.6 Warnings of the run"))
+    warnings = s.get("warnings", [])
+    b.append(Block("text", f"{len(warnings)} warning(s)." if warnings else "None."))
+    b += [Block("text", f"- {w}") for w in warnings]
+    return b
+
+
+def _building_blocks(run: RunOutputs) -> list[Block]:
+    b = [Block("subheading", "3.3 Buildings in damage category 2 and above")]
+    layer = run.frames.get("buildings")
+    if layer is None:
+        return b + [Block("text", "Buildings: not assessed (the run has no buildings layer).")]
+    cat = figures.building_categories(layer)
+    ranges = figures.category_ranges()
+    counts = [f"cat. {c} {word}: {int(np.sum(cat == c))}" for c, word, _ in ranges]
+    screened = int(layer["screened_out"].fillna(False).astype(bool).sum()) if "screened_out" in layer else None
+    text = f"{len(layer)} buildings assessed: " + "; ".join(counts) + f"; not assessed: {int(np.sum(cat < 0))}."
+    if screened is not None:
+        text += f" {screened} cleared at stage 1 (screening) and counted in category 0."
+    b.append(Block("text", text))
+    rows = buildings_to_report(layer)
+    if rows.empty:
+        return b + [Block("text", "No building is in damage category 2 or above.")]
+    b.append(Block("text", f"{len(rows)} building(s) in category 2 or above, worst first:"))
+    recs = _records(rows, {"id": "id", "cat": "category", "degree": "category_label",
+                           "settl mm": "max_settlement_mm", "tilt": lambda r: _one_in(r.get("max_tilt")),
+                           "strain %": "tensile_strain_pct", "defl ratio": "deflection_ratio",
+                           "hor strain %": "horizontal_strain_pct",
+                           "wall": lambda r: f"{_num(r.get('governing_wall'), '.0f')} {r.get('governing_mode') or ''}"})
+    cols = [("id", 22, None), ("cat", 3, ".0f"), ("degree", 21, None), ("settl mm", 8, ".1f"), ("tilt", 8, None),
+            ("strain %", 8, ".3f"), ("defl ratio", 10, ".2e"), ("hor strain %", 12, ".3f"), ("wall", 12, None)]
+    b.append(Block("mono", lines=table_lines(cols, recs)))
+    b.append(Block("text", "strain %: limiting tensile strain of the governing wall; defl ratio: its deflection ratio "
+                           "Delta/L; hor strain %: its average horizontal strain (tensile positive); wall: the "
+                           "governing wall and whether it sags or hogs. Category 3 and above: detailed assessment."))
+    return b
+
+
+def _utility_blocks(run: RunOutputs) -> list[Block]:
+    b = [Block("subheading", "3.4 Utilities near or over their limits")]
+    layer = run.frames.get("utilities")
+    if layer is None:
+        return b + [Block("text", "Utilities: not assessed (the run has no utilities layer).")]
+    from settle.pipelines import STATUSES
+
+    counts = layer["status"].value_counts()
+    b.append(Block("text", f"{len(layer)} pipes assessed: " +
+                   "; ".join(f"{word}: {int(counts.get(word, 0))}" for word in STATUSES) + "."))
+    crossing = layer[layer["status"] == "crosses the tunnel"]
+    if len(crossing):
+        b.append(Block("text", "Crossing the tunnel (no numbers; to be resolved with the asset owner): "
+                       + ", ".join(map(str, crossing["id"])) + "."))
+    rows = utilities_to_report(layer)
+    if rows.empty:
+        return b + [Block("text", "No pipe is near or over its limits.")]
+    b.append(Block("text", f"{len(rows)} pipe(s) near or over their limits, highest utilisation first:"))
+    recs = _records(rows, {"id": "id", "material": "material", "status": "status", "governs": "governing_check",
+                           "util": "utilisation", "at m": "governing_chainage_m", "bend ue": "max_bending_strain_ue",
+                           "axial+ ue": "max_axial_strain_ue", "axial- ue": "min_axial_strain_ue",
+                           "rot deg": "max_joint_rotation_deg", "open mm": "max_joint_opening_mm"})
+    cols = [("id", 14, None), ("material", 14, None), ("status", 11, None), ("governs", 14, None),
+            ("util", 5, ".2f"), ("at m", 6, ".1f"), ("bend ue", 7, ".0f"), ("axial+ ue", 9, ".0f"),
+            ("axial- ue", 9, ".0f"), ("rot deg", 7, ".3f"), ("open mm", 7, ".2f")]
+    b.append(Block("mono", lines=table_lines(cols, recs)))
+    b.append(Block("text", "util: the largest demand over its allowable value; at m: where along the pipe; ue: "
+                           "microstrain (axial tensile positive); rot, open: joint rotation and opening over one pipe "
+                           "length. Near-limit and exceeding pipes go to the asset owner for assessment."))
+    return b
+
+
+def _face_blocks(run: RunOutputs) -> list[Block]:
+    b = [Block("subheading", "3.5 Face stations with a narrow or closed window")]
+    layer = run.frames.get("face_stations")
+    if layer is None:
+        return b + [Block("text", "Face support window: not assessed (the run has no face_stations layer; the check "
+                                  "runs when every ground layer carries its strength).")]
+    route = run.frames["route"]
+    for k, r in enumerate(route.itertuples(index=False), start=1):
+        st = layer[layer["drive"] == r.drive]
+        if st.empty:
+            b.append(Block("text", f"D{k}: no face stations."))
+            continue
+        counts = st["status"].value_counts()
+        worst = st.iloc[int(np.argmin(st["window_kpa"].to_numpy(float)))]
+        low = int(st["low_cover"].fillna(False).astype(bool).sum()) if "low_cover" in st else 0
+        n = {word: int(counts.get(word, 0)) for word in ("open", "narrow", "closed")}
+        b.append(Block("text", f"D{k}: {len(st)} stations: open {n['open']}, narrow {n['narrow']}, closed "
+                               f"{n['closed']}; smallest window {worst['window_kpa']:.1f} kPa at "
+                               f"{worst['chainage_m']:.1f} m; {low} with low cover."))
+    rows = face_stations_to_report(layer)
+    if rows.empty:
+        return b + [Block("text", "No face station has a narrow or closed window.")]
+    index = {d: f"D{k}" for k, d in enumerate(route["drive"], start=1)}
+    recs = _records(rows, {"drive": lambda r: index.get(r["drive"], r["drive"]), "ch m": "chainage_m",
+                           "cover m": "cover_m", "water kPa": "water_pressure_kpa", "min kPa": "support_min_kpa",
+                           "max kPa": "support_max_kpa", "window kPa": "window_kpa", "status": "status",
+                           "mode": "support_mode", "low cover": lambda r: "yes" if r.get("low_cover") else "no",
+                           "river": lambda r: "yes" if r.get("in_river") else "no", "max by": "max_limited_by"})
+    cols = [("drive", 5, None), ("ch m", 7, ".1f"), ("cover m", 7, ".2f"), ("water kPa", 9, ".1f"),
+            ("min kPa", 7, ".1f"), ("max kPa", 7, ".1f"), ("window kPa", 10, ".1f"), ("status", 6, None),
+            ("mode", 11, None), ("low cover", 9, None), ("river", 5, None), ("max by", 12, None)]
+    b.append(Block("text", f"{len(rows)} station(s) with a narrow or closed window:"))
+    b.append(Block("mono", lines=table_lines(cols, recs)))
+    b.append(Block("text", "Pressures at the crown; window: maximum less minimum less twice the operating tolerance. "
+                           "These are planning bounds: the operating pressures are set and reviewed by the "
+                           "responsible engineer, under local codes."))
+    return b
+
+
+CAUTIONS = (
+    "Greenfield. The movements are those of the ground without the buildings and pipes in it: no structure or "
+    "utility stiffens the ground, unless a building's stiffness correction or a pipe's bending reduction factor was "
+    "given, and then the output says so.",
+    "The trough is Gaussian; volume loss and the trough width factor K are the engineer's inputs for each drive and "
+    "reach, and the results scale with them. The settlement ahead of the face of a closed-face machine is taken as "
+    "half the full value (often less in practice); consolidation settlement is not included; in sands the volume of "
+    "the subsurface trough is taken as constant with depth.",
+    "Buildings are treated as weightless elastic deep beams that follow the greenfield profile. A building in "
+    "category 3 (moderate) or above needs a detailed assessment (stage 3) by a qualified engineer, accounting for "
+    "its structure, foundations, condition and soil-structure interaction; category 5 is not assigned from strain.",
+    "Pipes are assumed to follow the ground, which is conservative for flexible and jointed pipes. The default "
+    "allowable values are indicative, not published values; exceedances and near-limit pipes go to the asset owner "
+    "for assessment with the owner's own limits.",
+    "The face support window gives planning bounds. The operating pressures are set and reviewed by the responsible "
+    "engineer under local codes, and adjusted to what the drive shows; slurry infiltration in coarse ground is not "
+    "modelled.",
+    "These are planning estimates. They support, and do not replace, the judgement of a qualified engineer. Local "
+    "codes and the responsible engineer decide what is acceptable, and monitoring during the drive checks the "
+    "prediction.",
+)
+
+
+def _caution_blocks(run: RunOutputs) -> list[Block]:
+    b = [Block("break"), Block("heading", SECTIONS[3])]
+    b += [Block("text", t) for t in CAUTIONS]
+    note = run.summary.get("buildings", {}).get("category_5_note") if isinstance(run.summary.get("buildings"),
+                                                                                  dict) else None
+    if note:
+        b.append(Block("text", f"Note from the run: {note}."))
+    if run.summary.get("caution"):
+        b.append(Block("text", f"The run's caution: {run.summary['caution']}"))
+    return b
+
+
+# ----------------------------------------------------------------------------------------------- figures
+def _slug(name: str) -> str:
+    return re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "drive"
+
+
+def _section_chainages(run: RunOutputs, sections_chainage_m) -> dict[str, list[float]]:
+    """Chainages of the transverse sections per drive: a dict per drive, or one list for every drive (each drive
+    takes those within it), or None: per drive, where the settlement along its axis is largest."""
+    axes = figures.drive_axes(run.frames["route"])
+    if sections_chainage_m is None:
+        spacing = figures.grid_spacing(run.summary)
+        out = {}
+        for a in axes:
+            c, s = figures.axis_settlement(run.gpkg, run.layers, a, spacing)
+            if np.isfinite(s).any():
+                out[a.name] = [float(np.round(c[int(np.nanargmax(s))], 1))]
+        return out
+    key = "[output] sections_chainage_m"
+    if isinstance(sections_chainage_m, dict):
+        unknown = [k for k in sections_chainage_m if k not in {a.name for a in axes}]
+        if unknown:
+            raise InputError(f"{key}: no drive named {unknown[0]!r}; the drives are {[a.name for a in axes]}")
+        return {str(k): list(np.atleast_1d(v)) for k, v in sections_chainage_m.items() if len(np.atleast_1d(v))}
+    try:
+        wanted = [float(c) for c in np.atleast_1d(np.asarray(sections_chainage_m, dtype=float))]
+    except (TypeError, ValueError):
+        raise InputError(f"{key}: chainages must be numbers in m; got {sections_chainage_m!r}") from None
+    out = {a.name: [c for c in wanted if a.start_m - 1e-6 <= c <= a.end_m + 1e-6] for a in axes}
+    for c in wanted:
+        if not any(c in v for v in out.values()):
+            raise InputError(f"{key}: chainage {c:g} m lies in no drive (" + "; ".join(
+                f"{a.name}: {a.start_m:.2f} to {a.end_m:.2f} m" for a in axes) + ")")
+    return {k: v for k, v in out.items() if v}
+
+
+def _figures(run: RunOutputs, folder: Path, sections: dict[str, list[float]]) -> list[tuple[Path, str]]:
+    """Write the figures of the report into `folder`; (path, caption) per figure."""
+    stem = run.stem
+    out = []
+    png = figures.plan_map_png(run.gpkg, run.summary, folder / f"{stem}-plan.png", dpi=FIGURE_DPI)
+    out.append((png, "Plan: settlement bands and contours, drives with chainage, buildings by damage category, "
+                     "pipes by status, face stations with a narrow or closed window."))
+    route = run.frames["route"]
+    for k, name in enumerate(route["drive"], start=1):
+        png = figures.longitudinal_section_png(run.gpkg, run.summary, name,
+                                               folder / f"{stem}-section-{k}-{_slug(name)}.png", dpi=FIGURE_DPI)
+        out.append((png, f"Longitudinal section of D{k}, {name}: ground, tunnel and cover, settlement along the axis"
+                         + (", face support window." if "face_stations" in run.layers else ".")))
+    for k, name in enumerate(route["drive"], start=1):
+        if name in sections:
+            where = ", ".join(f"{c:g}" for c in sections[name])
+            png = figures.transverse_sections_png(run.gpkg, run.summary, name, sections[name],
+                                                  folder / f"{stem}-transverse-{k}-{_slug(name)}.png",
+                                                  dpi=FIGURE_DPI)
+            out.append((png, f"Transverse sections across D{k}, {name}, at chainage {where} m: buildings over it, "
+                             "settlement trough, horizontal strain across the route."))
+    return out
+
+
+# ------------------------------------------------------------------------------------------------ rendering
+def _core_fonts_suffice(blocks: list[Block]) -> bool:
+    text = "\n".join([b.text for b in blocks] + [line for b in blocks for line in b.lines])
+    try:
+        text.encode("cp1252")
+    except UnicodeEncodeError:
+        return False
+    return True
+
+
+class _Renderer:
+    """Lays the blocks out on A4 pages with fig.text, top down."""
+
+    def __init__(self, pdf: PdfPages, header: str):
+        self.pdf, self.header = pdf, header
+        self.fig = None
+        self.page = 0
+        self.y = 0.0  # inches from the top of the page
+
+    def _start(self, size=A4):
+        self._finish()
+        self.fig = plt.figure(figsize=size)
+        self.page += 1
+        w, h = size
+        self.fig.text(MARGIN_IN / w, 1 - 0.4 / h, self.header, fontsize=7.5, color="0.35", weight="medium")
+        self.fig.text(1 - MARGIN_IN / w, 0.4 / h, f"page {self.page}", fontsize=7.5, color="0.35", ha="right",
+                      weight="medium")
+        self.fig.text(MARGIN_IN / w, 0.4 / h, "Greenfield estimates for planning: see section 4.", fontsize=7.5,
+                      color="0.35", weight="medium")
+        self.y = 0.8
+
+    def _finish(self):
+        if self.fig is not None:
+            self.pdf.savefig(self.fig)
+            plt.close(self.fig)
+            self.fig = None
+
+    def _line(self, text, size, family="sans-serif", weight="medium", gap=1.3, colour="k"):
+        step = size * gap / 72.0
+        if self.fig is None or self.y + step > A4[1] - 0.8:
+            self._start()
+        self.y += step
+        w, h = self.fig.get_size_inches()
+        self.fig.text(MARGIN_IN / w, 1 - self.y / h, text, fontsize=size, family=family, weight=weight,
+                      color=colour, va="baseline")
+
+    def render(self, blocks: list[Block]):
+        for b in blocks:
+            if b.kind == "break":
+                self._finish()
+            elif b.kind == "title":
+                self._line(b.text, 18, weight="bold", gap=1.6)
+                self.y += 0.08
+            elif b.kind == "heading":
+                self.y += 0.1
+                self._line(b.text, 14, weight="bold", gap=1.6)
+            elif b.kind == "subheading":
+                if self.fig is not None and self.y > A4[1] - 2.0:
+                    self._finish()  # keep a subheading with what follows
+                self.y += 0.08
+                self._line(b.text, 10.5, weight="bold", gap=1.5)
+            elif b.kind == "text":
+                indent = "  " if b.text.startswith("- ") else ""
+                for line in textwrap.wrap(b.text, WRAP_CHARS, subsequent_indent=indent) or [""]:
+                    self._line(line, TEXT_PT)
+                self.y += 0.05
+            elif b.kind == "mono":
+                for line in b.lines:
+                    self._line(line, MONO_PT, family="monospace", gap=1.25)
+                self.y += 0.08
+            elif b.kind == "image":
+                self._image(b)
+        self._finish()
+
+    def _image(self, b: Block):
+        img = plt.imread(str(b.image))
+        if img.ndim == 3 and img.shape[2] == 4:
+            img = img[..., :3]  # the figures are drawn on white: no transparency to keep
+        wide = img.shape[1] >= img.shape[0]
+        size = (A4[1], A4[0]) if wide else A4
+        self._start(size)
+        w, h = size
+        caption = textwrap.wrap(b.text, int(0.9 * WRAP_CHARS * (w - 2 * MARGIN_IN) / (A4[0] - 2 * MARGIN_IN)))  # bold
+        for k, line in enumerate(caption):
+            self.fig.text(MARGIN_IN / w, 1 - (0.8 + 0.17 * k) / h, line, fontsize=9, weight="bold")
+        top = 0.95 + 0.17 * len(caption)
+        ax = self.fig.add_axes([MARGIN_IN / w, 0.75 / h, 1 - 2 * MARGIN_IN / w, 1 - (0.75 + top) / h])
+        ax.imshow(img, interpolation="none")
+        ax.set_axis_off()
+        self._finish()
+
+
+def _atomic_pdf(path: Path, draw) -> Path:
+    """Write a PDF through a temporary file in its folder and an atomic rename."""
+    tmp = path.with_name(f".{path.name}.{uuid.uuid4().hex}.tmp")
+    try:
+        draw(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    return path
+
+
+# ---------------------------------------------------------------------------------------------- the report
+def write_report(out_dir, stem: str, run_date=None, project=None, sections_chainage_m=None,
+                 keep_figures: bool = False) -> Path:
+    """Write the assessment report of a finished run as `<out_dir>/<stem>-report.pdf`.
+
+    Parameters
+    ----------
+    out_dir : str or Path          The run's output folder (holding `<stem>.gpkg` and `summary.json`).
+    stem : str                     The project file's stem, which names the GeoPackage.
+    run_date : date, datetime or "YYYY-MM-DD", optional
+                                   The date printed in the report. Default: the date the run wrote its GeoPackage
+                                   (gpkg_contents.last_change, UTC).
+    project : settle.model.Project or path, optional
+                                   The project the run was made from, to list its inputs (ground layers, volume loss
+                                   per reach, settings) that the outputs do not hold; read again with
+                                   `settle.load_project` when a path. Its name and drives must match the run's.
+                                   Without it the inputs come from summary.json's "inputs" (the form of
+                                   `project_inputs`) when it has them, else only the route layer's are listed.
+    sections_chainage_m : sequence, dict or None
+                                   Chainages of the transverse sections [m]: one list for every drive (each takes
+                                   those within it), or {drive name: list}. Default: per drive, where the settlement
+                                   along its axis is largest.
+    keep_figures : bool            Also keep the figures as PNGs in out_dir (`<stem>-plan.png`,
+                                   `<stem>-section-<n>-<drive>.png`, `<stem>-transverse-<n>-<drive>.png`).
+
+    Returns
+    -------
+    Path  The PDF written (through a temporary file and an atomic rename).
+
+    Raises
+    ------
+    InputError  A missing or unreadable output, a run date that is not a date, a project that is not the run's,
+                a section chainage outside every drive.
+    """
+    run = read_outputs(out_dir, stem)
+    date = _run_date(run_date, run.gpkg)
+    inputs = run.summary.get("inputs")  # when summary.json carries project_inputs(project)
+    if project is not None:
+        if not hasattr(project, "drives"):
+            from settle.project import load_project
+
+            project = load_project(project)
+        inputs = project_inputs(project)
+        ran = list(run.frames["route"]["drive"])
+        if project.name != run.summary.get("project") or [d.name for d in project.drives] != ran:
+            raise InputError(f"{inputs['project_file']}: is not the project of the run in {run.out_dir} (project "
+                             f"{project.name!r} with drives {[d.name for d in project.drives]}; the run has "
+                             f"{run.summary.get('project')!r} with drives {ran})")
+        grid = dict(run.summary.get("grid") or {})
+        if "contour_levels_mm" not in grid:  # so the figures colour the bands as the GIS styles do
+            grid["contour_levels_mm"] = list(project.output.contour_levels_mm)
+            run.summary = {**run.summary, "grid": grid}
+    sections = _section_chainages(run, sections_chainage_m)
+    final = (run.out_dir / f"{stem}-report.pdf").resolve()
+    with tempfile.TemporaryDirectory(dir=run.out_dir, prefix=f".{stem}-figures-") as tmp:
+        folder = run.out_dir if keep_figures else Path(tmp)
+        figure_paths = _figures(run, folder, sections)
+        blocks = (_title_blocks(run, date, inputs) + _inputs_blocks(run, inputs) + _methods_blocks(run)
+                  + _results_blocks(run, figure_paths) + _caution_blocks(run))
+        header = f"{run.summary.get('project', stem)}: ground movement assessment, run of {date.isoformat()}"
+        core = _core_fonts_suffice(blocks + [Block("text", header)])
+        rc = {"pdf.use14corefonts": core, "pdf.fonttype": 42, "font.family": "sans-serif"}
+        if core:
+            rc.update({"font.sans-serif": ["Helvetica"], "font.monospace": ["Courier"]})
+        else:
+            rc.update({"font.sans-serif": ["DejaVu Sans"], "font.monospace": ["DejaVu Sans Mono"]})
+        from settle import __version__
+
+        metadata = {"Title": f"{run.summary.get('project', stem)}: ground movement assessment",
+                    "Subject": f"run of {date.isoformat()}", "Creator": f"settle {__version__}",
+                    "CreationDate": None}
+
+        def draw(path):
+            with matplotlib.rc_context(rc), PdfPages(path, metadata=metadata) as pdf:
+                _Renderer(pdf, header).render(blocks)
+
+        return _atomic_pdf(final, draw)
