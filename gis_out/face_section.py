@@ -8,8 +8,6 @@ Three panels against chainage, sharing it:
 """
 from __future__ import annotations
 
-import os
-import uuid
 from pathlib import Path
 
 import matplotlib
@@ -19,6 +17,8 @@ import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
 import numpy as np  # noqa: E402
 
 from settle.face_stations import CAUTION, FaceStations  # noqa: E402
+
+from .png import save_png  # noqa: E402
 from settle.results import DriveResult  # noqa: E402
 
 GROUND = "#8c6d46"
@@ -114,14 +114,7 @@ def face_section_png(stations: FaceStations, drive: DriveResult, path, layers=()
         fig.text(0.01, 0.005, CAUTION, fontsize=6.5, color="0.3")
         fig.tight_layout(rect=(0, 0.02, 1, 1))
 
-        final = Path(path).resolve()
-        tmp = final.with_name(f".{final.name}.{uuid.uuid4().hex}.tmp")
-        try:
-            fig.savefig(tmp, dpi=dpi, format="png")
-            os.replace(tmp, final)
-        except BaseException:
-            tmp.unlink(missing_ok=True)
-            raise
-    finally:
+    except BaseException:
         plt.close(fig)
-    return final
+        raise
+    return save_png(fig, path, dpi)

@@ -26,8 +26,6 @@ water level of a river), the figure says so rather than making it up.
 from __future__ import annotations
 
 import json
-import os
-import uuid
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -49,6 +47,7 @@ from shapely.ops import substring  # noqa: E402
 from settle.errors import InputError  # noqa: E402
 
 from . import styles  # noqa: E402
+from .png import save_png as _save_png  # noqa: E402
 
 # ------------------------------------------------------------------------------------------------------ palette
 MM_TO_PT = 72.0 / 25.4
@@ -318,18 +317,8 @@ def axis_settlement(gpkg, names: set[str], axis: DriveAxis, spacing_m: float):
 
 # ------------------------------------------------------------------------------------------------------ helpers
 def save_png(fig, path, dpi: int = PNG_DPI) -> Path:
-    """Write the figure as a PNG through a temporary file in the target folder and an atomic rename; close it."""
-    final = Path(path).resolve()
-    tmp = final.with_name(f".{final.name}.{uuid.uuid4().hex}.tmp")
-    try:
-        fig.savefig(tmp, dpi=dpi, format="png")
-        os.replace(tmp, final)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    finally:
-        plt.close(fig)
-    return final
+    """Write the figure as a PNG safely and close it (`gis_out.png.save_png`)."""
+    return _save_png(fig, path, dpi)
 
 
 def line_style(symbol) -> dict:

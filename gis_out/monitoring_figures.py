@@ -2,8 +2,6 @@
 fitted troughs), drawn from `settle.monitoring.Section`."""
 from __future__ import annotations
 
-import os
-import uuid
 from pathlib import Path
 
 import matplotlib
@@ -15,11 +13,12 @@ import numpy as np  # noqa: E402
 from settle.monitoring import Section  # noqa: E402
 from settle.summary import CAUTION  # noqa: E402
 
+from .png import save_png  # noqa: E402
+
 
 def section_png(section: Section, path, dpi: int = 120) -> Path:
     """Settlement across one monitored section: each point's latest reading, the design trough and the fitted trough,
     at the face of the latest reading. Settlement is drawn downward. Written to a temporary file, then moved."""
-    path = Path(path)
     fig, ax = plt.subplots(figsize=(8.0, 4.6))
     ax.plot(section.profile_offset_m, section.design_mm, color="0.35", lw=1.6, ls="--", label="design (project file)")
     if np.isfinite(section.fitted_mm).any():
@@ -37,12 +36,4 @@ def section_png(section: Section, path, dpi: int = 120) -> Path:
     ax.legend(fontsize=8, loc="lower right")
     fig.text(0.01, 0.01, CAUTION, fontsize=6, color="0.3")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
-    tmp = path.with_name(f".{path.name}.{uuid.uuid4().hex}.tmp.png")
-    try:
-        fig.savefig(tmp, dpi=dpi)
-        os.replace(tmp, path)
-    finally:
-        plt.close(fig)
-        if tmp.exists():
-            tmp.unlink()
-    return path
+    return save_png(fig, path, dpi)
