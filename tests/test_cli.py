@@ -119,6 +119,13 @@ def test_same_project_gives_the_same_outputs(demo_run, tmp_path):
     again = settle("run", DEMO / "ostrey.toml", "--readings", DEMO / "cable_tunnel_readings.csv", "--out", tmp_path)
     assert again.returncode == 0
     assert (tmp_path / "summary.json").read_text() == (out / "summary.json").read_text()
+    # Every layer, the style table included, holds the same rows and values (issue 7: reproducible output).
+    import pyogrio
+
+    for name in fiona.listlayers(out / "ostrey.gpkg"):
+        first = pyogrio.read_dataframe(out / "ostrey.gpkg", layer=name)
+        second = pyogrio.read_dataframe(tmp_path / "ostrey.gpkg", layer=name)
+        assert first.equals(second), name
 
 
 @pytest.mark.parametrize("args", [["--help"], ["run", "--help"]])
