@@ -130,9 +130,9 @@ def test_volume_conservation_on_curved_inclined_routes(radius, angle, n, depth, 
     # Identity: the volume of the surface trough equals the volume lost along the excavated length
     # (VL pi D^2/4 per metre of 3-D length), whatever the curvature, grade and face position.
     xy = b.arc(radius, angle, n)
-    length = radius * np.radians(angle)
     s = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(xy, axis=0).T))])
     z = np.minimum(10.0 - depth + grade * s, 10.0 - 3.0)  # keep at least 3 m of depth
+    length = np.sum(np.sqrt(np.diff(s) ** 2 + np.diff(z) ** 2))  # chainage runs along the 3-D polyline
     d = b.drive(xy, z, vl_pct=vl, face_chainage_m=None if face == 1.0 else face * length * 0.999)
     r = run(d, spacing=0.5)
     assert r.lost_volume_m3 > 0
