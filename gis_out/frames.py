@@ -5,6 +5,8 @@ Layers and fields (the names are part of the output format; GIS projects refer t
 - `route`             LineString Z per drive: drive, start_chainage_m, end_chainage_m, length_m, outer_diameter_m,
                       face_chainage_m (NULL when the drive is complete), excavated_to_m, min_cover_m,
                       min_axis_depth_m, lost_volume_m3.
+- `route_reaches`     LineString Z per reach of each drive (REACH_FIELDS): cut where volume loss or K, the face
+                      support mode, a river or the face changes, with the face check's results within each reach.
 - `route_profile`     Point every metre of chainage along each drive's axis: drive, chainage_m, ground_level_m,
                       axis_level_m, cover_m (the ground surface model; river beds are in face_stations).
 - `grid`              Point per grid node kept by the run: settlement_mm, ux_mm, uy_mm, strain_max_ue, strain_min_ue,
@@ -51,6 +53,7 @@ GEOMETRY_TYPES = {
     "buildings": "MultiPolygon",
     "building_walls": "LineString",
     "readings": "Point",
+    "route_reaches": "LineString Z",
     "route_profile": "Point",
     "utilities": "LineString",
     "utility_critical_points": "Point",
@@ -197,6 +200,79 @@ def profile_frame(drives: list[DriveResult], crs: str) -> gpd.GeoDataFrame:
     return _frame({k: table[k].to_numpy() for k in table}, points, crs, "route_profile")
 
 
+REACH_FIELDS = ("drive", "reach", "from_chainage_m", "to_chainage_m", "length_m", "volume_loss_pct",
+                "trough_width_k", "excavated", "river", "support_mode", "min_cover_m", "face_min_window_kpa",
+                "face_status", "face_low_cover")
+
+
+SLIVER_M = 0.01  # reach ends closer than this are one [m]
+
+
+def _cuts(drive, geometry, rivers) -> np.ndarray:
+    """Chainages where a drive's reach attributes change: its ends, its reaches, support reaches, rivers, the face."""
+    cuts = [geometry.start_chainage_m, geometry.end_chainage_m, geometry.excavated_to_m]
+    cuts += [c for r in drive.reaches for c in (r.from_chainage_m, r.to_chainage_m)]
+    cuts += [c for r in drive.face_support for c in (r.from_chainage_m, r.to_chainage_m)]
+    cuts += [c for r in rivers if r.drive == drive.name for c in (r.from_chainage_m, r.to_chainage_m)]
+    kept = [geometry.start_chainage_m]
+    for c in np.unique(np.clip(cuts, geometry.start_chainage_m, geometry.end_chainage_m))[1:]:
+        if c - kept[-1] > SLIVER_M:
+            kept.append(float(c))
+    kept[-1] = geometry.end_chainage_m  # a cut within a centimetre of the end is the end
+    return np.array(kept)
+
+
+def reaches_frame(result: Result) -> gpd.GeoDataFrame:
+    """One LineString Z per reach of every drive: the drive cut wherever its volume loss or K, its face support mode,
+    a river, or the face (excavated or not) changes, with the face check's results within it when the check ran.
+
+    `trough_width_k` is NaN where K comes from the layers (thickness-weighted at each tunnel element); `face_status`
+    is the worst status of the face stations within the reach ("" without a face check).
+    """
+    from settle.face_stations import STATUSES
+    from settle.route import position_at, reach_values
+
+    project = result.project
+    face = {st.drive: st for st in result.face}
+    default_mode = (project.face.support_mode if project.face is not None else "slurry") if result.face else ""
+    rows, geoms = {k: [] for k in REACH_FIELDS}, []
+    for drive, geometry in zip(project.drives, result.drives):
+        cuts = _cuts(drive, geometry, project.rivers)
+        stations = face.get(drive.name)
+        for n, (a, b) in enumerate(zip(cuts[:-1], cuts[1:]), 1):
+            mid = 0.5 * (a + b)
+            vl, k = reach_values(drive, np.array([mid]))
+            inside = (geometry.chainage_m > a) & (geometry.chainage_m < b)
+            chain = np.concatenate([[a], geometry.chainage_m[inside], [b]])
+            geoms.append(shapely.linestrings(position_at(geometry.axis_xyz_m, geometry.chainage_m, chain)))
+            profile = (geometry.profile_chainage_m >= a) & (geometry.profile_chainage_m <= b)
+            river = [r.name or "river" for r in project.rivers
+                     if r.drive == drive.name and r.from_chainage_m <= mid <= r.to_chainage_m]
+            mode = [r.mode for r in drive.face_support if r.from_chainage_m <= mid < r.to_chainage_m]
+            # Stations on a cut are left out (the check puts a station a centimetre on each side of a reach end to
+            # show the values there); the drive's own ends belong to its first and last reach.
+            first, last = n == 1, n == len(cuts) - 1
+            c = stations.chainage_m if stations is not None else None
+            at = (((c > a) | (first & (c >= a))) & ((c < b) | (last & (c <= b)))) if c is not None else None
+            some = at is not None and at.any()
+            worst = max((STATUSES.index(s) for s in stations.status[at]), default=None) if some else None
+            for key, value in (("drive", drive.name), ("reach", n), ("from_chainage_m", a), ("to_chainage_m", b),
+                               ("length_m", b - a), ("volume_loss_pct", 100.0 * vl[0]), ("trough_width_k", k[0]),
+                               ("excavated", bool(b <= geometry.excavated_to_m + 1e-9)),
+                               ("river", river[0] if river else ""),
+                               ("support_mode", (mode[0] if mode else default_mode) if result.face else ""),
+                               ("min_cover_m", float(np.min(geometry.profile_ground_m[profile]
+                                                            - geometry.profile_axis_m[profile])
+                                                     - geometry.outer_diameter_m / 2.0) if profile.any() else np.nan),
+                               ("face_min_window_kpa", float(np.min(stations.window_kpa[at])) if some else np.nan),
+                               ("face_status", STATUSES[worst] if worst is not None else ""),
+                               ("face_low_cover", bool(stations.low_cover[at].any()) if some else False)):
+                rows[key].append(value)
+    columns = {k: (pd.Series(v, dtype=str) if k in ("drive", "river", "support_mode", "face_status")
+                   else np.asarray(v)) for k, v in rows.items()}
+    return _frame(columns, geoms, project.crs, "route_reaches")
+
+
 def readings_frame(comparison, crs: str) -> gpd.GeoDataFrame:
     """Each monitored point's latest reading against the prediction (settle.fitting.Comparison)."""
     from settle.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
@@ -239,7 +315,8 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     project = result.project
     crs = project.crs
     levels_where = where(project.path, "[output] contour_levels_mm")
-    layers = {"route": route_frame(result.drives, crs), "route_profile": profile_frame(result.drives, crs),
+    layers = {"route": route_frame(result.drives, crs), "route_reaches": reaches_frame(result),
+              "route_profile": profile_frame(result.drives, crs),
               "grid": grid_frame(result.grid, crs)}
     if result.points is not None:
         layers["points"] = points_frame(result.points, result.point_ids, crs)

@@ -289,6 +289,7 @@ SINGLE_SYMBOLS = {
     "route": ("tunnel axis", Symbol("line", "#111111", width_mm=0.9, halo_mm=0.4)),
     "settlement_lines": ("settlement contour", Symbol("line", "#303030", width_mm=0.25)),
     "grid": ("grid node", Symbol("marker", "#6b6b6b", shape="circle", size_mm=0.8, outline=None)),
+    "route_reaches": ("reach of a drive", Symbol("line", "#5a5a5a", width_mm=0.5)),
     "route_profile": ("route profile point", Symbol("marker", "#111111", shape="circle", size_mm=0.5, outline=None)),
     "points": ("reporting point", Symbol("marker", "#111111", shape="circle", size_mm=1.8, outline="#ffffff",
                                          width_mm=0.2)),

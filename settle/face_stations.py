@@ -621,7 +621,9 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
 FACE_STATION_FIELDS = ("drive", "chainage_m", "cover_m", "water_pressure_kpa", "support_min_kpa", "blowout_kpa",
                        "support_max_kpa", "window_kpa", "status")
 FACE_STATION_EXTRA_FIELDS = ("support_mode", "in_river", "low_cover", "stability_ratio_n", "n_above_critical",
-                             "fracture_kpa", "max_limited_by", "min_governed_by")
+                             "fracture_kpa", "max_limited_by", "min_governed_by", "total_stress_crown_kpa",
+                             "effective_stress_crown_kpa", "total_stress_axis_kpa", "effective_stress_axis_kpa",
+                             "water_pressure_axis_kpa", "tolerance_kpa")
 OPERATOR_COLUMNS = ("drive", "chainage_m", "status", "support_mode", "tolerance_kpa", "hold_from_crown_kpa",
                     "hold_to_crown_kpa", "hold_from_axis_kpa", "hold_to_axis_kpa")
 

@@ -172,7 +172,7 @@ def _runs(x: np.ndarray, flag: np.ndarray) -> list[tuple[float, float]]:
     return [(float(x[a]), float(x[b])) for a, b in zip(starts, stops)]
 
 
-def _reach_values(drive: Drive, chain_mid: np.ndarray):
+def reach_values(drive: Drive, chain_mid: np.ndarray):
     """Volume loss (fraction) and trough width factor override (NaN = from the layers) at chainages."""
     vl = np.full(chain_mid.shape, drive.volume_loss_pct / 100.0)
     k = np.full(chain_mid.shape, np.nan if drive.trough_width_k is None else drive.trough_width_k)
@@ -200,7 +200,7 @@ def tunnel_elements(drive: Drive, geometry: DriveResult, ground: GroundModel, in
     p = position_at(xyz, chain, st)
     s_level = ground.surface_level(p[:, 0], p[:, 1])
     z0 = s_level - p[:, 2]
-    vl, k_override = _reach_values(drive, 0.5 * (st[1:] + st[:-1]))
+    vl, k_override = reach_values(drive, 0.5 * (st[1:] + st[:-1]))
     k_layers = ground.trough_width_k(s_level, p[:, 2])
     i_min = float(np.min(np.where(np.isnan(k_override), k_layers[:-1], k_override) * z0[:-1]))
 
@@ -228,7 +228,7 @@ def tunnel_elements(drive: Drive, geometry: DriveResult, ground: GroundModel, in
     surface_mid = np.array([s_level[a : b + 1].mean() for a, b in zip(cuts[:-1], cuts[1:])])
     axis_mid = 0.5 * (start[:, 2] + end[:, 2])
     mid_chain = 0.5 * (st[cuts[1:]] + st[cuts[:-1]])
-    vl_e, k_e = _reach_values(drive, mid_chain)
+    vl_e, k_e = reach_values(drive, mid_chain)
     k_e = np.where(np.isnan(k_e), ground.trough_width_k(surface_mid, axis_mid), k_e)
     z0_e = surface_mid - axis_mid
     area = excavated_area(drive.outer_diameter_m)

@@ -34,7 +34,7 @@ def test_demo_runs_and_writes_the_contract_layers(demo_run):
     assert sorted(fiona.listlayers(gpkg)) == sorted(["layer_styles", "route", "grid", "settlement_bands", "settlement_lines", "points",
                                                      "face_stations", "utilities", "utility_critical_points",
                                                      "buildings", "building_walls", "readings",
-                                                     "route_profile"])
+                                                     "route_profile", "route_reaches"])
     fields = {name: set(fiona.open(gpkg, layer=name).schema["properties"]) for name in fiona.listlayers(gpkg)}
     assert {"settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["grid"]
     assert {"id", "settlement_mm", "ux_mm", "uy_mm", "strain_max_ue", "strain_min_ue", "tilt"} <= fields["points"]
@@ -97,6 +97,24 @@ def test_demo_buildings_show_several_categories(demo_run):
     assert sum(1 for n in counts.values() if n) >= 3  # the demo shows several categories (issue 3)
     table = (out / "buildings.csv").read_text().splitlines()
     assert "qualified engineer" in table[0] and len(table) == 2 + 29
+
+
+def test_demo_route_reaches(demo_run):
+    import pyogrio
+
+    _, out = demo_run
+    reaches = pyogrio.read_dataframe(out / "ostrey.gpkg", layer="route_reaches")
+    route = pyogrio.read_dataframe(out / "ostrey.gpkg", layer="route")
+    for _, drive in route.iterrows():
+        mine = reaches[reaches["drive"] == drive["drive"]]
+        assert abs(mine["length_m"].sum() - drive["length_m"]) < 1e-6  # the reaches tile the drive
+        assert abs(mine.geometry.length.sum() - drive.geometry.length) < 1e-6  # and follow its axis
+    brook = reaches[reaches["river"] == "Wenlow Brook"].iloc[0]
+    assert (brook["from_chainage_m"], brook["to_chainage_m"]) == (289.0, 305.0)
+    assert brook["volume_loss_pct"] == 2.5 and brook["support_mode"] == "air_cushion"
+    assert brook["face_status"] == "narrow" and bool(brook["face_low_cover"])
+    cable = reaches[reaches["drive"].str.startswith("Osier")]
+    assert list(cable["excavated"]) == [True, False]  # split at the face, chainage 95 m
 
 
 def test_demo_summary(demo_run):

@@ -100,7 +100,8 @@ def written(tmp_path_factory):
 def test_frames_layers_and_geometry(written):
     result, _ = written
     layers = frames(result)
-    assert list(layers) == ["route", "route_profile", "grid", "points", "settlement_bands", "settlement_lines"]
+    assert list(layers) == ["route", "route_reaches", "route_profile", "grid", "points", "settlement_bands",
+                            "settlement_lines"]
     assert all(g.crs == CRS for g in layers.values())
     assert list(layers["route"].geom_type) == ["LineString", "LineString"] and layers["route"].has_z.all()
     assert (layers["grid"].geom_type == "Point").all() and not layers["grid"].has_z.any()
@@ -154,7 +155,7 @@ def test_written_file_is_conformant(written):
         types = dict(con.execute("SELECT table_name, geometry_type_name || ':' || z FROM gpkg_geometry_columns"))
         faces = con.execute("SELECT drive, face_chainage_m FROM route ORDER BY fid").fetchall()
     assert faces == [("North Main", None), ("Spur B", 40.0)]  # NULL for the complete drive
-    assert types == {"route": "LINESTRING:1", "route_profile": "POINT:0", "grid": "POINT:0", "points": "POINT:0",
+    assert types == {"route": "LINESTRING:1", "route_reaches": "LINESTRING:1", "route_profile": "POINT:0", "grid": "POINT:0", "points": "POINT:0",
                      "settlement_bands": "MULTIPOLYGON:0", "settlement_lines": "MULTILINESTRING:0"}
 
 
@@ -242,7 +243,7 @@ def test_failure_mid_write_leaves_the_old_file_untouched(tmp_path, monkeypatch):
     old = write_geopackage(tmp_path / "result.gpkg", frames(make_result(seed=1)))
     before = old.read_bytes()
     monkeypatch.setattr(pyogrio, "write_dataframe", failing_on_layer(2))
-    with pytest.raises(RuntimeError, match="simulated failure writing layer route_profile"):
+    with pytest.raises(RuntimeError, match="simulated failure writing layer route_reaches"):
         write_geopackage(tmp_path / "result.gpkg", frames(make_result(seed=2)))
     assert old.read_bytes() == before
     assert listing(tmp_path) == ["result.gpkg"]  # no temporary file or journal left
@@ -253,8 +254,8 @@ def test_a_new_write_replaces_the_file(tmp_path):
     write_geopackage(path, frames(make_result(seed=1)))
     new = make_result(seed=2, with_points=False)
     write_geopackage(path, frames(new))
-    assert [n for n, _ in pyogrio.list_layers(path)] == ["route", "route_profile", "grid", "settlement_bands",
-                                                         "settlement_lines"]
+    assert [n for n, _ in pyogrio.list_layers(path)] == ["route", "route_reaches", "route_profile", "grid",
+                                                         "settlement_bands", "settlement_lines"]
     np.testing.assert_array_equal(gpd.read_file(path, layer="grid")["ux_mm"], new.grid.ux_mm)
     assert listing(tmp_path) == ["result.gpkg"]
 
