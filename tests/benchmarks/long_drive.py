@@ -58,14 +58,18 @@ def main():
     layers = gis_out.frames(result)
     t2 = time.perf_counter()
     out = Path(args.out or tempfile.mkdtemp())
-    path = gis_out.write_geopackage(out / "benchmark.gpkg", layers)
+    from gis_out.styles import styles_hook
+
+    levels = project.output.contour_levels_mm
+    path = gis_out.write_geopackage(out / "benchmark.gpkg", layers, extra=styles_hook(layers, levels))
     t3 = time.perf_counter()
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     n = len(result.grid)
     print(f"drive 2000 m, {result.drives[0].element_count} tunnel elements, grid 1 m")
     print(f"grid nodes >= 0.1 mm: {n}; tiles: {len(result.tiles.settlement_mm)}")
     print(f"engine (route + grid): {t1 - t0:.2f} s  ({a.timings})")
-    print(f"layers (contours, frames): {t2 - t1:.2f} s; GeoPackage write: {t3 - t2:.2f} s; total {t3 - t0:.2f} s")
+    print(f"layers (contours, frames): {t2 - t1:.2f} s; GeoPackage write with styles: {t3 - t2:.2f} s; "
+          f"total {t3 - t0:.2f} s")
     print(f"volume check: lost {result.lost_volume_m3:.3f} m3, trough {result.settlement_volume_m3:.3f} m3")
     print(f"peak resident memory: {peak_mb:.0f} MB; file {path.stat().st_size / 1e6:.1f} MB")
 
