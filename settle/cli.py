@@ -9,16 +9,18 @@ import argparse
 import json
 import re
 import sys
+import textwrap
 from pathlib import Path
 
 from . import __version__
 from .errors import InputError
 from .summary import CAUTION
 
-DESCRIPTION = (
-    "settle: greenfield ground movements along pipejacked and microtunnelled drives, from one project file "
-    "to a GeoPackage.\n\n" + CAUTION
-)
+
+
+def _paragraphs(*texts: str) -> str:
+    """Help text: each paragraph wrapped to 100 columns (the formatter keeps the blank lines between them)."""
+    return "\n\n".join(textwrap.fill(t, 100) for t in texts)
 
 
 class _Progress:
@@ -42,18 +44,26 @@ class _Progress:
 
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
-        prog="settle", description=DESCRIPTION, formatter_class=argparse.RawDescriptionHelpFormatter
+        prog="settle",
+        description=_paragraphs("settle: greenfield ground movements, building damage, utility strains and face "
+                                "support windows along pipejacked and microtunnelled drives, from one project file "
+                                "to a GeoPackage, tables, figures and a report.", CAUTION),
+        formatter_class=argparse.RawDescriptionHelpFormatter
     )
     parser.add_argument("--version", action="version", version=f"settle {__version__}")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
     run = commands.add_parser(
         "run",
         help="compute greenfield movements for a project and write the GeoPackage and summary",
-        description=(
-            "Compute greenfield ground movements along every drive of PROJECT (a TOML project file) and write "
-            "DIR/<project file stem>.gpkg (layers route, grid, settlement_bands, settlement_lines, points) and "
-            "DIR/summary.json. Outputs are written to temporary files and moved into place, so a failed run "
-            "never damages the result of an earlier one.\n\n" + CAUTION
+        description=_paragraphs(
+            "Compute greenfield ground movements along every drive of PROJECT (a TOML project file), and the "
+            "building damage, utility and face support checks the project asks for, and write "
+            "DIR/<project file stem>.gpkg (layers route, route_reaches, route_profile, grid, settlement_bands, "
+            "settlement_lines, points, and buildings, building_walls, utilities, utility_critical_points, "
+            "face_stations, readings when computed, each with a default style), DIR/summary.json, the CSV tables "
+            "and figures. Outputs are written to temporary files and moved into place, so a failed run never "
+            "damages the result of an earlier one.",
+            CAUTION,
         ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -70,11 +80,12 @@ def _parser() -> argparse.ArgumentParser:
     report = commands.add_parser(
         "report",
         help="write the PDF assessment report of a finished run, without recomputing",
-        description=(
+        description=_paragraphs(
             "Write DIR/<stem>-report.pdf from the outputs a finished `settle run PROJECT.toml --out DIR` left in "
             "DIR (GeoPackage and summary.json), with the inputs read from PROJECT.toml: title block, inputs and "
             "where they came from, methods with their references, results with figures and tables, assumptions and "
-            "the cautions of the trade. Nothing is recomputed.\n\n" + CAUTION
+            "the cautions of the trade. Nothing is recomputed.",
+            CAUTION,
         ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -86,13 +97,14 @@ def _parser() -> argparse.ArgumentParser:
     fit = commands.add_parser(
         "fit",
         help="back-analyse volume loss and trough width from monitoring readings",
-        description=(
+        description=_paragraphs(
             "Back-analyse the volume loss and trough width factor K that the monitoring readings show, per drive "
             "(or per reach), against the same three-dimensional model `settle run` uses, with each reading's face "
             "position. Writes DIR/fit.json (values, standard errors, readings used, residual RMS, outliers), "
             "DIR/<stem>-fitted.toml (the project with the fitted values, which `settle run` accepts unchanged) "
             "and, when the project has buildings or utilities, DIR/forecast.csv: what lies ahead of the face, "
-            "assessed again with the fitted values, marked where its category or status changed.\n\n" + CAUTION
+            "assessed again with the fitted values, marked where its category or status changed.",
+            CAUTION,
         ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
