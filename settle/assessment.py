@@ -105,7 +105,9 @@ class Assessment:
         from .buildings import assess_buildings
 
         t = time.perf_counter()
+        self.progress("buildings", 0.0)
         self._buildings = assess_buildings(p.buildings, self.movements_at, p.building_options)
+        self.progress("buildings", 1.0)
         self._timed("buildings", t)
         if self._result is not None:
             self._result.buildings = self._buildings
@@ -119,7 +121,9 @@ class Assessment:
         from .pipelines import assess_utilities
 
         t = time.perf_counter()
+        self.progress("utilities", 0.0)
         self._utilities = assess_utilities(p.utilities, self.movements_at, p.utility_options)
+        self.progress("utilities", 1.0)
         self.warnings.extend(self._utilities.warnings)
         self._timed("utilities", t)
         if self._result is not None:
@@ -137,7 +141,8 @@ class Assessment:
 
         t = time.perf_counter()
         where = p.path.name if p.path else "project"
-        for drive, geometry in zip(p.drives, self.drives):
+        for k, (drive, geometry) in enumerate(zip(p.drives, self.drives)):
+            self.progress("face support", k / len(p.drives))
             stations = face_stations(geometry, self.ground, p.strengths, p.rivers, p.face, drive.face_support, where)
             self._face.append(stations)
             self.warnings.extend(stations.warnings)

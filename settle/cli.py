@@ -32,7 +32,7 @@ class _Progress:
 
     def __call__(self, stage: str, fraction: float) -> None:
         if self.enabled:
-            sys.stderr.write(f"\r{stage}: {100 * fraction:5.1f} %")
+            sys.stderr.write(f"\r{stage + ':':<14}{100 * fraction:5.1f} %")
             sys.stderr.flush()
             self.shown = True
 

@@ -216,7 +216,7 @@ def test_progress_only_on_a_terminal(capsys):
     shown = _Progress(enabled=True)
     shown("grid", 0.5)
     shown.done()
-    assert "grid:  50.0 %" in capsys.readouterr().err
+    assert "grid:          50.0 %" in capsys.readouterr().err
 
 
 def test_piped_run_prints_no_progress(demo_run):
