@@ -254,7 +254,8 @@ def _fit(args) -> int:
     """`settle fit`: back-analysis, fitted project file, forecast ahead of the face."""
     import gis_out
 
-    from .fitting import back_analysis, fit_report, fitted_project_toml
+    from .fitted_file import fitted_project_toml
+    from .fitting import back_analysis, fit_report
     from .monitoring import FORECAST_FIELDS, forecast_ahead
     from .project import load_project
     from .readings import read_readings

@@ -17,8 +17,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from settle.errors import InputError
+from settle.fitted_file import fitted_project_toml
 from settle.fitting import (STATUS_AMBER, STATUS_CLEAR, STATUS_RED, FitResult, apply_fits, back_analysis, comparison,
-                            fit_report, fitted_project_toml, point_chainage_m, predicted_settlement_mm,
+                            fit_report, point_chainage_m, predicted_settlement_mm,
                             trigger_status)
 from settle.model import Reach
 from settle.project import load_project
