@@ -935,7 +935,7 @@ def report_rows(buildings: Buildings, results: BuildingResults) -> list[dict]:
 def category_counts(buildings: Buildings, results: BuildingResults) -> dict:
     """For summary.json: buildings per damage category, how many stage 1 screened out, and what was not assessed."""
     cat = results.category
-    by = {str(c): int(np.sum(cat == c)) for c in range(len(CATEGORY_LABELS))}
+    by = {str(c): int(np.sum(cat == c)) for c in range(6)}  # 0 to 5, as the damage table has; 5 is never assigned
     return {
         "buildings": len(buildings),
         "screened_out_stage_1": int(results.screened_out.sum()),
