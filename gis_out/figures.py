@@ -187,7 +187,7 @@ def _normal(t: np.ndarray) -> np.ndarray:
 
 @dataclass
 class GroundProfile:
-    """What the outputs say about the ground along a drive (at the face stations)."""
+    """What the outputs say about the ground along a drive (face stations, or the route profile)."""
 
     chainage_m: np.ndarray
     surface_level_m: np.ndarray  # the ground, or the river bed in a river reach
@@ -638,8 +638,8 @@ def longitudinal_section_png(gpkg, summary, drive: str, path, dpi: int = PNG_DPI
 
     Notes
     -----
-    Ground levels along the route are in the outputs only at the face stations; without them the section shows the
-    tunnel alone and says so. The water level over a river reach is drawn only when the face stations carry a
+    Ground levels along the route come from the face stations when the face check ran (with river beds), else from
+    the `route_profile` layer; with neither the section shows the tunnel alone and says so. The water level over a river reach is drawn only when the face stations carry a
     `water_level_m` field.
     """
     info = read_summary(summary)
@@ -695,7 +695,7 @@ def _section_panel(ax, axis: DriveAxis, profile: GroundProfile | None) -> None:
         ax.fill_between(ahead, za - r, za + r, facecolor="white", edgecolor=TUNNEL, hatch="///", lw=0,
                         label="not yet excavated")
     if profile is None:
-        ax.text(0.01, 0.95, "Ground levels along this drive are not in the outputs (no face check): the tunnel alone "
+        ax.text(0.01, 0.95, "Ground levels along this drive are not in the outputs (no face stations, no route profile): the tunnel alone "
                 f"is drawn. Least cover (route layer): {axis.min_cover_m:.2f} m.", transform=ax.transAxes,
                 fontsize=7.5, va="top", color="0.2")
     else:

@@ -28,9 +28,7 @@ References
 ----------
 [M09]  Machado, G. M., Oliveira, M. M. & Fernandes, L. A. F. (2009). A physiologically-based model for simulation of
        color vision deficiency. IEEE Transactions on Visualization and Computer Graphics 15(6), 1291-1298.
-[IEC]  IEC 61966-2-1:1999. Multimedia systems and equipment - Colour measurement and management - Part 2-1: Default
-       RGB colour space - sRGB.
-[CIE]  CIE 15:2004. Colorimetry, 3rd edition (CIE 1976 L*a*b* and the colour difference Delta E*ab).
+       (The colour science itself, with its references, is in `gis_out.colour`.)
 [SE]   OGC 05-077r4. Symbology Encoding Implementation Specification 1.1.0; OGC 05-078r4, Styled Layer Descriptor
        profile of the Web Map Service 1.1.0; OGC 04-095, Filter Encoding 1.1.0.
 """

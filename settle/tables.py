@@ -310,17 +310,26 @@ def _choose_feature(frame, source: str, feature: str | None, feature_key: str):
     return frame.geometry.iloc[hits[0]]
 
 
-def _line_coordinates(geometry, source: str) -> np.ndarray:
-    """Vertices (n x 3) of a LineString Z or a one-part MultiLineString Z. [m]"""
+def single_line(geometry, source: str, parts_hint: str, kind_hint: str):
+    """The LineString of a feature that is one, or a one-part MultiLineString; anything else is an InputError.
+
+    `parts_hint` follows "a MultiLineString of N parts; " and `kind_hint` follows "a <type>; " in the messages.
+    """
     if geometry is None or geometry.is_empty:
         raise InputError(f"{source}: the feature has no geometry")
     if geometry.geom_type == "MultiLineString":
         if len(geometry.geoms) != 1:
-            raise InputError(f"{source}: a MultiLineString of {len(geometry.geoms)} parts; a drive needs one "
-                             "continuous line (merge the parts)")
+            raise InputError(f"{source}: a MultiLineString of {len(geometry.geoms)} parts; {parts_hint}")
         geometry = geometry.geoms[0]
     if geometry.geom_type != "LineString":
-        raise InputError(f"{source}: a {geometry.geom_type}; a drive alignment must be a LineString with Z")
+        raise InputError(f"{source}: a {geometry.geom_type}; {kind_hint}")
+    return geometry
+
+
+def _line_coordinates(geometry, source: str) -> np.ndarray:
+    """Vertices (n x 3) of a LineString Z or a one-part MultiLineString Z. [m]"""
+    geometry = single_line(geometry, source, "a drive needs one continuous line (merge the parts)",
+                           "a drive alignment must be a LineString with Z")
     if not geometry.has_z:
         raise InputError(f"{source}: the line has no Z; a drive alignment needs a 3-D line (LineString Z)")
     return shapely.get_coordinates(geometry, include_z=True)

@@ -44,7 +44,8 @@ import numpy as np
 import shapely
 
 from .errors import InputError
-from .tables import GIS_SUFFIXES, PLAN_TOLERANCE_M, listing, project_transformer, read_gis_layer, shown
+from .tables import (GIS_SUFFIXES, PLAN_TOLERANCE_M, listing, project_transformer, read_gis_layer, shown,
+                     single_line)
 
 VERTICALS = ("depth", "axis")  # depth_m attribute | Z is the pipe axis level
 SUFFIXES = tuple(s for s in GIS_SUFFIXES if s != ".shp")  # shapefiles cut attribute names to 10 characters
@@ -407,16 +408,9 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
             if name == "outer_diameter_mm" and math.isnan(value):
                 raise InputError(f"{label}: outer_diameter_mm is empty")
             numbers[name].append(value)
-        geometry = cells[frame.geometry.name]
-        if geometry is None or geometry.is_empty:
-            raise InputError(f"{label}: the feature has no geometry")
-        if geometry.geom_type == "MultiLineString":
-            if len(geometry.geoms) != 1:
-                raise InputError(f"{label}: a MultiLineString of {len(geometry.geoms)} parts; give each continuous "
-                                 "pipe as one line (merge the parts, or split them into pipes with their own ids)")
-            geometry = geometry.geoms[0]
-        if geometry.geom_type != "LineString":
-            raise InputError(f"{label}: a {geometry.geom_type}; a utility must be a line (LineString)")
+        geometry = single_line(cells[frame.geometry.name], label,
+                               "give each continuous pipe as one line (merge the parts, or split them into pipes "
+                               "with their own ids)", "a utility must be a line (LineString)")
         if options.vertical == "axis" and not geometry.has_z:
             raise InputError(f'{label}: the line has no Z, but {key} vertical = "axis" reads the pipe axis level '
                              "from Z; give 3-D lines or a depth_m attribute")
