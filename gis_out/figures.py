@@ -695,7 +695,8 @@ def _section_panel(ax, axis: DriveAxis, profile: GroundProfile | None) -> None:
         ax.fill_between(ahead, za - r, za + r, facecolor="white", edgecolor=TUNNEL, hatch="///", lw=0,
                         label="not yet excavated")
     if profile is None:
-        ax.text(0.01, 0.95, "Ground levels along this drive are not in the outputs (no face stations, no route profile): the tunnel alone "
+        ax.text(0.01, 0.95, "Ground levels along this drive are not in the outputs (no face stations, no route "
+                "profile): the tunnel alone "
                 f"is drawn. Least cover (route layer): {axis.min_cover_m:.2f} m.", transform=ax.transAxes,
                 fontsize=7.5, va="top", color="0.2")
     else:
