@@ -22,7 +22,7 @@ import shapely
 from shapely import LineString, MultiLineString, MultiPolygon, Polygon
 
 from settle.errors import InputError
-from settle.results import SettlementTiles
+from settle.engine.movements import SettlementTiles
 
 # Neighbours whose extended tile reaches into tile (tr, tc): below, left and below-left (row index grows northward).
 _REACHING_NEIGHBOURS = ((-1, 0), (0, -1), (-1, -1))

@@ -16,10 +16,10 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
 import numpy as np  # noqa: E402
 
-from settle.face_stations import CAUTION, FaceStations  # noqa: E402
+from settle.assessments.face_stations import CAUTION, FaceStations  # noqa: E402
+from settle.inputs.route import DriveResult  # noqa: E402
 
 from .png import save_png  # noqa: E402
-from settle.results import DriveResult  # noqa: E402
 
 GROUND = "#8c6d46"
 WATER = "#3b7dd8"

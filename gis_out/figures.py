@@ -356,7 +356,7 @@ def _nice(length: float) -> float:
 def category_ranges() -> list[tuple[int, str, str]]:
     """(category, degree of damage, limiting tensile strain range in %) per damage category, from
     `settle.buildings` (Boscardin & Cording 1989; Burland 1995)."""
-    from settle.buildings import CATEGORY_LABELS, CATEGORY_LIMITS_PCT
+    from settle.assessments.building_damage import CATEGORY_LABELS, CATEGORY_LIMITS_PCT
 
     lim = CATEGORY_LIMITS_PCT
     out = [(0, CATEGORY_LABELS[0], f"< {lim[0]:g} %, or screened out at stage 1")]
@@ -376,7 +376,7 @@ def pipe_status_classes(utilities: gpd.GeoDataFrame) -> np.ndarray:
     """The status of every pipe as the integer `status_class` (settle.pipelines.STATUSES order)."""
     if "status_class" in utilities:
         return pd.to_numeric(utilities["status_class"], errors="coerce").fillna(-1).to_numpy().astype(np.int64)
-    from settle.pipelines import STATUSES
+    from settle.assessments.utilities import STATUSES
 
     index = {s: k for k, s in enumerate(STATUSES)}
     return np.array([index.get(s, -1) for s in utilities["status"]], dtype=np.int64)

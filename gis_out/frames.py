@@ -39,7 +39,7 @@ import pandas as pd
 import shapely
 
 from settle.errors import where
-from settle.results import DriveResult, Movements, Result
+from settle.procedure.results import DriveResult, Movements, Result
 
 from .contours import settlement_bands, settlement_lines
 
@@ -153,9 +153,9 @@ def lines_frame(rows: list[dict], crs: str) -> gpd.GeoDataFrame:
 
 def face_frame(all_stations, crs: str) -> gpd.GeoDataFrame:
     """The face stations of every drive: points on the axis in plan, fields of `face_station_fields`."""
-    from settle.face_stations import face_station_fields
+    from settle.assessments.face_tables import face_station_fields
 
-    from settle.face_stations import STATUSES
+    from settle.assessments.face_stations import STATUSES
 
     parts = [pd.DataFrame({**face_station_fields(st), "axis_level_m": st.axis_level_m,
                            "ground_level_m": st.ground_level_m, "surface_level_m": st.surface_level_m,
@@ -174,7 +174,7 @@ def _status_class(status, vocabulary) -> np.ndarray:
 
 def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFrame:
     """The route layer with each drive's face-window attributes (`face_summary`) added."""
-    from settle.face_stations import face_summary
+    from settle.assessments.face_tables import face_summary
 
     summaries = pd.DataFrame([face_summary(st) for st in all_stations])
     for name in summaries:
@@ -185,7 +185,7 @@ def _with_face_summary(route: gpd.GeoDataFrame, all_stations) -> gpd.GeoDataFram
 def profile_frame(drives: list[DriveResult], crs: str) -> gpd.GeoDataFrame:
     """Points along every drive's axis in plan, every metre and at every vertex: drive, chainage_m, ground_level_m
     (the ground surface model; not the river bed), axis_level_m, cover_m. For longitudinal sections."""
-    from settle.route import position_at
+    from settle.inputs.route import position_at
 
     parts = []
     for d in drives:
@@ -229,8 +229,9 @@ def reaches_frame(result: Result) -> gpd.GeoDataFrame:
     `trough_width_k` is NaN where K comes from the layers (thickness-weighted at each tunnel element); `face_status`
     is the worst status of the face stations within the reach ("" without a face check).
     """
-    from settle.face_stations import STATUSES
-    from settle.route import position_at, reach_values
+    from settle.assessments.face_stations import STATUSES
+    from settle.engine.elements import reach_values
+    from settle.inputs.route import position_at
 
     project = result.project
     face = {st.drive: st for st in result.face}
@@ -275,7 +276,7 @@ def reaches_frame(result: Result) -> gpd.GeoDataFrame:
 
 def readings_frame(comparison, crs: str) -> gpd.GeoDataFrame:
     """Each monitored point's latest reading against the prediction (settle.fitting.Comparison)."""
-    from settle.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
+    from settle.monitoring.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
 
     dates = pd.to_datetime(comparison.date).tz_localize("UTC")
     columns = {"point_id": pd.Series(comparison.point_id, dtype=str), "drive": pd.Series(comparison.drive, dtype=str),
@@ -324,16 +325,17 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     layers["settlement_bands"] = bands_frame(settlement_bands(result.tiles, levels, levels_where), crs)
     layers["settlement_lines"] = lines_frame(settlement_lines(result.tiles, levels, levels_where), crs)
     if result.buildings is not None:
-        from settle.buildings import building_columns, wall_columns
+        from settle.assessments.building_tables import building_columns, wall_columns
 
         for name, columns in (("buildings", building_columns(project.buildings, result.buildings)),
                               ("building_walls", wall_columns(project.buildings, result.buildings))):
             geometry = columns.pop("geometry")
             layers[name] = _frame(columns, geometry, crs, name)
     if result.utilities is not None:
-        from settle.pipelines import CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows, utility_rows
+        from settle.assessments.utility_tables import (CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows,
+                                                       utility_rows)
 
-        from settle.pipelines import STATUSES as PIPE_STATUSES
+        from settle.assessments.utilities import STATUSES as PIPE_STATUSES
 
         pipes = project.utilities
         layers["utilities"] = rows_frame(utility_rows(pipes, result.utilities), UTILITY_FIELDS, crs, "utilities")

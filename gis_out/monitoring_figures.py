@@ -10,8 +10,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
 import numpy as np  # noqa: E402
 
-from settle.monitoring import Section  # noqa: E402
-from settle.summary import CAUTION  # noqa: E402
+from settle.monitoring.sections import Section  # noqa: E402
+from settle.procedure.summary import CAUTION  # noqa: E402
 
 from .png import save_png  # noqa: E402
 

@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from settle.results import SettlementTiles
+from settle.engine.movements import SettlementTiles
 
 INSTALL_HINT = 'the settlement GeoTIFF needs rasterio: pip install -e ".[raster]"'
 

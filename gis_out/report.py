@@ -277,7 +277,7 @@ def project_inputs(project) -> dict:
     if project.strengths:
         from dataclasses import asdict
 
-        from settle.face_stations import FaceOptions
+        from settle.inputs.face_settings import FaceOptions
 
         face = {k: v for k, v in asdict(project.face or FaceOptions()).items() if isinstance(v, (int, float, str))}
     tables = {}
@@ -410,10 +410,11 @@ def _inputs_blocks(run: RunOutputs, inputs: dict | None) -> list[Block]:
 
 
 #: What each assessment does, in brief (the README and the docstrings of the modules named hold the detail), and
-#: the status of its formulas and values as those docstrings give it.
+#: the status of its formulas and values as those docstrings give it. Each names (the module whose docstring holds
+#: the references, the name the report prints for it; kept as the report has always printed it).
 METHODS = {
     "greenfield": (
-        "settle.troughs",
+        ("settle.engine.troughs", "settle.troughs"),
         "Greenfield ground movements. Transverse Gaussian trough (Peck 1969) with i = K z0 (O'Reilly & New 1982), K "
         "weighted by layer thickness; three-dimensional trough from point sinks integrated exactly over straight "
         "tunnel elements along the excavated length (Attewell & Woodman 1982; Attewell, Yeates & Selby 1986), which "
@@ -422,7 +423,7 @@ METHODS = {
         "movements toward the axis and their strains after O'Reilly & New (1982).",
         "Some coefficients are marked in the engine's documentation as taken from memory of the sources."),
     "buildings": (
-        "settle.buildings",
+        ("settle.assessments.building_damage", "settle.buildings"),
         "Building damage. Stage 1 screening on the greenfield settlement and slope over each footprint (Rankin 1988; "
         "Mair, Taylor & Burland 1996): below 10 mm and 1/500, negligible risk. Stage 2: each wall a weightless "
         "elastic deep beam following the greenfield profile (Burland & Wroth 1974; Burland 1995), split into "
@@ -433,7 +434,7 @@ METHODS = {
         "from memory of Rankin (1988). A strain above 0.3 % is reported as category 4 (severe to very severe): no "
         "strain criterion separates categories 4 and 5."),
     "utilities": (
-        "settle.pipelines",
+        ("settle.assessments.utilities", "settle.pipelines"),
         "Buried utilities. Each pipe follows the ground at its own depth: bending strain from the curvature of the "
         "settlement along it, axial strain from the horizontal ground strain along its axis, their combination at "
         "the extreme fibre, and for jointed pipes the joint rotation and opening over one pipe length at the worst "
@@ -442,7 +443,7 @@ METHODS = {
         "The default allowable values per material are indicative: none is a published value (common practice or "
         "from memory, as the utilities table of the README says). The asset owner's limits govern."),
     "face": (
-        "settle.face",
+        ("settle.assessments.face_methods", "settle.face"),
         "Face support window. Minimum support at the crown: water pressure plus the wedge-and-silo support "
         "(Anagnostou & Kovari 1994) with partial factors, and in cohesive ground the Broms & Bennermark (1967) "
         "stability ratio. Maximum: the blow-out stress (total vertical stress at the crown) and the Delft "
@@ -459,7 +460,7 @@ def _methods_blocks(run: RunOutputs) -> list[Block]:
     b = [Block("break"), Block("heading", SECTIONS[1])]
     ran = {"greenfield": True, "buildings": "buildings" in run.layers, "utilities": "utilities" in run.layers,
            "face": "face_stations" in run.layers}
-    for n, (key, (module, text, status)) in enumerate(METHODS.items(), start=1):
+    for n, (key, ((module, label), text, status)) in enumerate(METHODS.items(), start=1):
         title = text.split(".", 1)[0]
         b.append(Block("subheading", f"2.{n} {title}"))
         if not ran[key]:
@@ -469,7 +470,7 @@ def _methods_blocks(run: RunOutputs) -> list[Block]:
         b.append(Block("text", f"Status: {status}"))
         refs = docstring_references(importlib.import_module(module))
         if refs:
-            b.append(Block("text", f"References (from the docstring of {module}):"))
+            b.append(Block("text", f"References (from the docstring of {label}):"))
             b += [Block("text", f"- {r}") for r in refs]
     return b
 
@@ -555,7 +556,7 @@ def _utility_blocks(run: RunOutputs) -> list[Block]:
     layer = run.frames.get("utilities")
     if layer is None:
         return b + [Block("text", "Utilities: not assessed (the run has no utilities layer).")]
-    from settle.pipelines import STATUSES
+    from settle.assessments.utilities import STATUSES
 
     counts = layer["status"].value_counts()
     b.append(Block("text", f"{len(layer)} pipes assessed: " +
@@ -858,7 +859,7 @@ def write_report(out_dir, stem: str, run_date=None, project=None, sections_chain
     inputs = run.summary.get("inputs")  # when summary.json carries project_inputs(project)
     if project is not None:
         if not hasattr(project, "drives"):
-            from settle.project import load_project
+            from settle.inputs.project_file import load_project
 
             project = load_project(project)
         inputs = project_inputs(project)

@@ -46,7 +46,7 @@ import numpy as np
 import pandas as pd
 import pyogrio
 
-from settle import buildings, face_stations, pipelines
+from settle.assessments import building_damage, face_stations, utilities
 
 from .colour import (  # noqa: F401  (re-exported for the tests and the figures)
     D65_WHITE_XYZ, MACHADO_MATRICES, SRGB_TO_XYZ, cielab_ramp, cielab_to_linear_rgb, delta_e_cie76, hex_to_srgb,
@@ -111,8 +111,8 @@ DAMAGE_COLOURS = ("#eef3f7", "#b3d3e8", "#ecb533", "#dc7428", "#b5305a", "#4d124
 #: "severe to very severe": that method reads any tensile strain above 0.3 % as category 4, because the published
 #: table gives the same limit for 4 and 5), and the Burland (1995) degree of damage for 5, which the method never
 #: assigns (methods.md section 5.2 [S]).
-DAMAGE_WORDS = tuple(buildings.CATEGORY_LABELS) + ("very severe",)
-NOT_ASSESSED_WORDS = buildings.NOT_ASSESSED_LABEL
+DAMAGE_WORDS = tuple(building_damage.CATEGORY_LABELS) + ("very severe",)
+NOT_ASSESSED_WORDS = building_damage.NOT_ASSESSED_LABEL
 #: Status colours shared by utilities and face stations: fine, caution, beyond the limit.
 OK_BLUE, CAUTION_AMBER, BEYOND_CRIMSON = "#2767ad", "#f0a202", "#b3124e"
 UTILITY_SYMBOLS = (  # by status_class, in the order of settle.pipelines.STATUSES
@@ -285,12 +285,12 @@ def layer_style(name: str, frame, levels_mm=None) -> LayerStyle | None:
     if name in ("buildings", "building_walls"):
         return damage_style(frame, name)
     if name == "utilities":
-        return status_style(frame, name, pipelines.STATUSES, UTILITY_SYMBOLS, "buried utilities, by status")
+        return status_style(frame, name, utilities.STATUSES, UTILITY_SYMBOLS, "buried utilities, by status")
     if name == "face_stations":
         return status_style(frame, name, face_stations.STATUSES, FACE_SYMBOLS,
                             "face-check stations, by support window status")
     if name == "readings":
-        from settle.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
+        from settle.monitoring.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED
 
         return status_style(frame, name, (STATUS_CLEAR, STATUS_AMBER, STATUS_RED), FACE_SYMBOLS,
                             "monitoring points, latest reading against the trigger levels")

@@ -15,14 +15,14 @@ __version__ = "0.1.0"
 
 def load_project(path):
     """Read and validate a project file (TOML); see `settle.project.load_project`."""
-    from .project import load_project as _load
+    from .inputs.project_file import load_project as _load
 
     return _load(path)
 
 
 def run(project, progress=None):
     """Assess a project (a `Project` or the path of its file) and return the `Result`; see `settle.assessment.run`."""
-    from .assessment import run as _run
+    from .procedure.orchestrator import run as _run
 
     return _run(project, progress)
 

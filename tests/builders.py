@@ -1,7 +1,7 @@
 """Small projects built in code for the engine tests (no files)."""
 import numpy as np
 
-from settle.model import Drive, Ground, Layer, Output, Points, Project, Surface
+from settle.inputs.model import Drive, Ground, Layer, Output, Points, Project, Surface
 
 CLAY = Layer("clay", 10.0, 19.0, 0.5, "cohesive")
 

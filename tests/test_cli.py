@@ -304,12 +304,12 @@ def test_readings_need_trigger_levels(tmp_path):
 
 def test_report_from_a_finished_run_without_recomputing(demo_run, tmp_path, monkeypatch):
     # `settle report` reads the outputs only: it must not call the engine.
-    import settle.assessment
+    import settle.procedure.orchestrator
 
     _, good = demo_run
     out = tmp_path / "out"
     shutil.copytree(good, out)
-    monkeypatch.setattr(settle.assessment, "run", lambda *a, **k: pytest.fail("the report recomputed the run"))
+    monkeypatch.setattr(settle.procedure.orchestrator, "run", lambda *a, **k: pytest.fail("the report recomputed the run"))
     from settle.cli import main
 
     assert main(["report", str(DEMO / "ostrey.toml"), "--out", str(out), "--date", "2026-12-01"]) == 0

@@ -11,7 +11,7 @@ from shapely import MultiLineString, MultiPolygon
 
 from gis_out.contours import settlement_bands, settlement_lines, snap_size_m
 from settle.errors import InputError
-from settle.results import SettlementTiles
+from settle.engine.movements import SettlementTiles
 
 ORIGIN = (530_000.0, 180_000.0)  # British National Grid magnitudes, to exercise float precision far from 0
 

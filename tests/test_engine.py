@@ -8,8 +8,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from settle.assessment import Assessment
-from settle.model import Layer
-from settle.troughs import excavated_area, straight_tunnel_movements
+from settle.inputs.model import Layer
+from settle.engine.troughs import excavated_area, straight_tunnel_movements
 
 from . import builders as b
 
@@ -172,7 +172,7 @@ def test_layered_trough_width():
 
 def test_reach_volume_loss_applies_on_its_length():
     # Far inside a reach the settlement is the plane-strain value for the reach's volume loss (Peck 1969).
-    from settle.model import Reach
+    from settle.inputs.model import Reach
 
     d = b.drive([[0, 0], [600, 0]], 4.0, reaches=(Reach(200.0, 400.0, 2.0, 0.4),))
     r = run(d, points=b.points([[100, 0], [300, 0]]))

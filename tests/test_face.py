@@ -12,7 +12,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from settle import face
+from settle.assessments import face_methods as face
 
 G_SAT, G_W = 20.0, 9.81
 G_EFF = G_SAT - G_W

@@ -13,16 +13,16 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from settle import face
+from gis_out.tables import operator_csv_text
+from settle.assessments import face_methods as face
+from settle.assessments.face_stations import STATUSES, face_stations, station_chainages
+from settle.assessments.face_tables import FACE_STATION_FIELDS, OPERATOR_COLUMNS, face_station_fields, face_summary
 from settle.errors import InputError
-from settle.face_stations import (
-    FACE_STATION_FIELDS, OPERATOR_COLUMNS, STATUSES, FaceOptions, LayerStrength, River, SupportReach,
-    check_face_options, check_layer_strengths, check_rivers, face_station_fields, face_stations, face_summary,
-    operator_csv_text, station_chainages,
-)
-from settle.ground import GroundModel
-from settle.model import Ground, Layer, Surface
-from settle.route import build_drive
+from settle.inputs.face_settings import (FaceOptions, LayerStrength, River, SupportReach, check_face_options,
+                                         check_layer_strengths, check_rivers)
+from settle.inputs.ground import GroundModel
+from settle.inputs.model import Ground, Layer, Surface
+from settle.inputs.route import build_drive
 
 from . import builders as b
 

@@ -19,8 +19,8 @@ import gis_out  # noqa: E402
 import settle  # noqa: E402
 from gis_out import figures  # noqa: E402
 from settle.errors import InputError  # noqa: E402
-from settle.results import Movements  # noqa: E402
-from settle.summary import summarise  # noqa: E402
+from settle.engine.movements import Movements  # noqa: E402
+from settle.procedure.summary import summarise  # noqa: E402
 
 from . import builders  # noqa: E402
 

@@ -17,14 +17,14 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from settle.errors import InputError
-from settle.fitted_file import fitted_project_toml
-from settle.fitting import (STATUS_AMBER, STATUS_CLEAR, STATUS_RED, FitResult, apply_fits, back_analysis, comparison,
+from settle.monitoring.fitted_file import fitted_project_toml
+from settle.monitoring.fitting import (STATUS_AMBER, STATUS_CLEAR, STATUS_RED, FitResult, apply_fits, back_analysis, comparison,
                             fit_report, point_chainage_m, predicted_settlement_mm,
                             trigger_status)
-from settle.model import Reach
-from settle.project import load_project
-from settle.readings import Readings, read_readings
-from settle.troughs import excavated_area
+from settle.engine.troughs import excavated_area
+from settle.inputs.model import Reach
+from settle.inputs.project_file import load_project
+from settle.inputs.readings import Readings, read_readings
 
 from . import builders as b
 
@@ -196,8 +196,8 @@ def test_point_chainage_on_a_bent_axis():
 
 
 def fitting_geometry(project):
-    from settle.ground import GroundModel
-    from settle.route import build_drive
+    from settle.inputs.ground import GroundModel
+    from settle.inputs.route import build_drive
     return build_drive(project.drives[0], GroundModel(project.ground))[0]
 
 

@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 from shapely.geometry import MultiPolygon, Point, Polygon, box
 
 from settle.errors import InputError
-from settle.footprints import BuildingDefaults, buildings_from_table, footprint_walls, read_buildings
+from settle.inputs.footprints import BuildingDefaults, buildings_from_table, footprint_walls, read_buildings
 
 CRS = "EPSG:25832"
 DEFAULTS = BuildingDefaults(default_height_m=6.0, default_foundation_depth_m=0.5, default_structure="masonry")

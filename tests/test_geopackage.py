@@ -18,8 +18,8 @@ from gis_out import frames, write_geopackage, write_text_atomic
 from gis_out import geopackage as gp
 from gis_out.geopackage import OutputBusyError, OutputError
 from settle.errors import InputError
-from settle.model import Drive, Ground, Layer, Output, Points, Project, Surface
-from settle.results import DriveResult, Movements, Result, SettlementTiles
+from settle.inputs.model import Drive, Ground, Layer, Output, Points, Project, Surface
+from settle.procedure.results import DriveResult, Movements, Result, SettlementTiles
 from tests.gpkg_conformance import assert_conformant, problems
 
 CRS = "EPSG:27700"

@@ -12,13 +12,14 @@ from hypothesis import strategies as st
 
 from settle.assessment import Assessment
 from settle.errors import InputError
-from settle.field import movements_at_points
-from settle.pipelines import (CRITICAL_POINT_FIELDS, CROSSES, EXCEEDS, NEAR, NOT_CHECKED, STATUSES, UTILITY_FIELDS,
-                              WITHIN, UtilityOptions, assess_utilities, axial_strain, bending_strain,
-                              critical_point_rows, extreme_fibre_strains, ground_curvature, joint_opening,
-                              joint_rotation, status_counts, utility_rows)
-from settle.results import Movements
-from settle.utility_lines import make_utilities
+from settle.assessments.utilities import CROSSES, EXCEEDS, NEAR, NOT_CHECKED, STATUSES, WITHIN, assess_utilities
+from settle.assessments.utility_strains import (axial_strain, bending_strain, extreme_fibre_strains, ground_curvature,
+                                               joint_opening, joint_rotation)
+from settle.assessments.utility_tables import CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows, status_counts, utility_rows
+from settle.engine.field import movements_at_points
+from settle.engine.movements import Movements
+from settle.inputs.utility_lines import make_utilities
+from settle.inputs.utility_settings import UtilityOptions
 
 from . import builders as b
 

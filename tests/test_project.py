@@ -15,8 +15,8 @@ from hypothesis import strategies as st
 from shapely.geometry import LineString, MultiLineString, Point
 
 from settle.errors import InputError
-from settle.project import load_project
-from settle.tables import check_alignment
+from settle.inputs.project_file import load_project
+from settle.inputs.tables import check_alignment
 
 BASE = """\
 [project]

@@ -2,7 +2,7 @@
 import pytest
 
 from settle.assessment import Assessment
-from settle.project import load_project
+from settle.inputs.project_file import load_project
 
 from .test_project import edit, fails, site  # noqa: F401  (site is a fixture)
 

@@ -26,7 +26,7 @@ def test_geotiff_holds_the_grid_values_at_the_node_positions(tmp_path):
 
 
 def test_empty_tiles_give_a_single_zero_cell():
-    from settle.results import SettlementTiles
+    from settle.engine.movements import SettlementTiles
 
     grid, _, _ = settlement_array(SettlementTiles(1.0, 0.0, 0.0, 8))
     assert grid.shape == (1, 1) and grid[0, 0] == 0

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 
 from settle.errors import InputError
-from settle.project import load_project
-from settle.readings import SAME_PLACE_M, parse_date, read_readings
+from settle.inputs.project_file import load_project
+from settle.inputs.readings import SAME_PLACE_M, parse_date, read_readings
 
 PROJECT = """\
 [project]

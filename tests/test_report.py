@@ -22,7 +22,7 @@ import gis_out
 import settle
 from gis_out import report
 from settle.errors import InputError
-from settle.summary import summarise
+from settle.procedure.summary import summarise
 
 from . import builders
 
@@ -139,12 +139,10 @@ def test_demo_report_lists_inputs_from_the_project_file(demo):
 def test_methods_carry_the_references_of_the_engine_docstrings(demo):
     _, _, _, text = demo
     methods = " ".join(between(text, report.SECTIONS[1], report.SECTIONS[2]))
-    import settle.buildings
-    import settle.face
-    import settle.pipelines
-    import settle.troughs
+    from settle.assessments import building_damage, face_methods, utilities
+    from settle.engine import troughs
 
-    for module in (settle.troughs, settle.buildings, settle.pipelines, settle.face):
+    for module in (troughs, building_damage, utilities, face_methods):
         refs = report.docstring_references(module)
         assert refs, module.__name__
         for ref in refs:  # the first words of every reference (lines are wrapped in the PDF)

@@ -3,9 +3,10 @@ import numpy as np
 import pytest
 
 from settle.errors import InputError
-from settle.ground import GroundModel
-from settle.model import Drive, Ground, Layer, Reach, Surface
-from settle.route import build_drive, chainage, tunnel_elements
+from settle.engine.elements import tunnel_elements
+from settle.inputs.ground import GroundModel
+from settle.inputs.model import Drive, Ground, Layer, Reach, Surface
+from settle.inputs.route import build_drive, chainage
 
 from . import builders as b
 

@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 from gis_out import frames, write_geopackage
 from gis_out import styles as s
 from gis_out.geopackage import read_only_uri
-from settle import face_stations, pipelines
+from settle.assessments import face_stations, utilities
 from tests.gpkg_conformance import assert_conformant
 from tests.test_geopackage import make_result
 
@@ -69,7 +69,7 @@ def layers_all() -> dict[str, gpd.GeoDataFrame]:
         "building_walls": frame({"building_id": ["E", "E"], "category": np.array([4, 1], dtype=np.int64),
                                  "category_label": ["severe to very severe", "very slight"]},
                                 [line(60, 40), line(60, 48)], "LineString"),
-        "utilities": frame({"id": [f"U{k}" for k in range(5)], "status": list(pipelines.STATUSES),
+        "utilities": frame({"id": [f"U{k}" for k in range(5)], "status": list(utilities.STATUSES),
                             "status_class": np.arange(5, dtype=np.int64)},
                            [line(0, 60 + 4 * k) for k in range(5)], "LineString"),
         "utility_critical_points": frame({"id": ["U0"]}, points(1), "Point"),

@@ -10,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import quad
 
-from settle import troughs
+from settle.engine import troughs
 
 D, Z0, K, VL = 3.0, 6.0, 0.5, 0.01
 I = K * Z0

@@ -8,7 +8,7 @@ import pytest
 import shapely
 
 from settle.errors import InputError
-from settle.utility_lines import (ALLOWABLE_KEYS, MATERIAL_LIMITS, MATERIALS, UtilityReadOptions, make_utilities,
+from settle.inputs.utility_lines import (ALLOWABLE_KEYS, MATERIAL_LIMITS, MATERIALS, UtilityReadOptions, make_utilities,
                                   read_utilities)
 
 CRS = "EPSG:25832"

@@ -4,7 +4,7 @@
 
 Prints the time of the building assessment (stage 1 and stage 2, walls, sampling, parts) with two greenfield
 callables: the closed form of a straight drive (so the time is the assessment's own), and the engine's
-`settle.field.movements_at_points` on the same drive built by `settle.assessment.Assessment`. Then, for a sample of
+`settle.engine.field.movements_at_points` on the same drive built by `settle.assessment.Assessment`. Then, for a sample of
 CURVED_SAMPLE buildings along the 2 km curved drive of `tests.benchmarks.long_drive`, the time with the engine's
 callable, and the same scaled to 20,000 buildings: `movements_at_points` evaluates every tunnel element at every
 point, so there the callable, not the assessment, sets the time.
@@ -18,12 +18,13 @@ import pandas as pd
 import shapely
 
 from settle.assessment import Assessment
-from settle.buildings import assess_buildings, building_columns, category_counts, report_rows, wall_columns
-from settle.field import movements_at_points
-from settle.footprints import BuildingDefaults, buildings_from_table
-from settle.model import Drive, Ground, Layer, Output, Project, Surface
-from settle.results import Movements
-from settle.troughs import excavated_area, straight_tunnel_movements
+from settle.assessments.building_tables import building_columns, category_counts, report_rows, wall_columns
+from settle.assessments.buildings import assess_buildings
+from settle.engine.field import movements_at_points
+from settle.engine.movements import Movements
+from settle.engine.troughs import excavated_area, straight_tunnel_movements
+from settle.inputs.footprints import BuildingDefaults, buildings_from_table
+from settle.inputs.model import Drive, Ground, Layer, Output, Project, Surface
 
 N = 20_000
 CURVED_SAMPLE = 300

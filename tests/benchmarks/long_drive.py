@@ -16,8 +16,8 @@ from pathlib import Path
 import numpy as np
 
 from settle.assessment import Assessment
-from settle.model import Drive, Ground, Layer, Output, Project, Surface
-from settle.troughs import excavated_area, straight_tunnel_movements
+from settle.inputs.model import Drive, Ground, Layer, Output, Project, Surface
+from settle.engine.troughs import excavated_area, straight_tunnel_movements
 
 
 def curved_project() -> Project:
@@ -74,7 +74,7 @@ def main():
     print(f"peak resident memory: {peak_mb:.0f} MB; file {path.stat().st_size / 1e6:.1f} MB")
 
     # Plain closed form at the same nodes: one straight 2 km element over a band of the same number of nodes.
-    from settle.field import influence_corners
+    from settle.engine.field import influence_corners
 
     corners = influence_corners(a.elements, project.output.precision_mm / 1e3)
     side_a, side_b = corners[:, 1] - corners[:, 0], corners[:, 3] - corners[:, 0]

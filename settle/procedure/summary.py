@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import __version__
+from .. import __version__
 from .results import Movements, Result
 
 CAUTION = (
@@ -90,15 +90,15 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
     if summary["max_compressive_strain"]:  # reported as a signed (negative) strain
         summary["max_compressive_strain"]["strain_ue"] *= -1
     if result.buildings is not None:
-        from .buildings import category_counts
+        from ..assessments.building_tables import category_counts
 
         summary["buildings"] = category_counts(p.buildings, result.buildings)
     if result.utilities is not None:
-        from .pipelines import status_counts
+        from ..assessments.utility_tables import status_counts
 
         summary["utilities"] = {"pipes": len(result.utilities), "by_status": status_counts(result.utilities)}
     if result.face:
-        from .face_stations import face_summary
+        from ..assessments.face_tables import face_summary
 
         summary["face_support"] = [
             {"drive": st.drive, **{k: (_r(v, 2) if isinstance(v, float) else v) for k, v in face_summary(st).items()},

@@ -12,7 +12,7 @@ import re
 import tomllib
 from pathlib import Path
 
-from .errors import InputError
+from ..errors import InputError
 
 #: Keys whose text value is a path relative to the project file; any other text value naming an existing file
 #: beside the project file is taken to be a path too (keys added to the project file later).

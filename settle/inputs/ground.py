@@ -5,7 +5,7 @@ import numpy as np
 from scipy.interpolate import LinearNDInterpolator
 from scipy.spatial import Delaunay, QhullError
 
-from .errors import InputError
+from ..errors import InputError
 from .model import Ground
 
 

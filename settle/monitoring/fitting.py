@@ -74,14 +74,14 @@ import numpy as np
 from scipy.optimize import least_squares
 from scipy.special import ndtri
 
-from .errors import InputError
-from .field import movements_at_points
-from .ground import GroundModel
-from .model import Drive, Project
-from .project import K_RANGE
-from .readings import Readings
-from .results import DriveResult
-from .route import Elements, build_drive, tunnel_elements
+from ..engine.elements import Elements, tunnel_elements
+from ..engine.field import movements_at_points
+from ..errors import InputError
+from ..inputs.ground import GroundModel
+from ..inputs.model import Drive, Project
+from ..inputs.project_file import K_RANGE
+from ..inputs.readings import Readings
+from ..inputs.route import DriveResult, build_drive
 
 #: soft_l1 loss scale of the robust fit: residuals much larger weigh linearly (our choice, common practice). [mm]
 ROBUST_SCALE_MM = 1.0

@@ -91,13 +91,13 @@ from pathlib import Path
 
 import pyproj
 
-from .errors import InputError
-from .buildings import STIFFNESS_METHODS, AssessmentOptions
+from ..errors import InputError
+from .building_settings import STIFFNESS_METHODS, AssessmentOptions
 from .footprints import DEFAULT_E_OVER_G, MODIFICATION_ATTRIBUTES, BuildingDefaults, read_buildings
-from .pipelines import UtilityOptions
 from .utility_lines import VERTICALS as UTILITY_VERTICALS
 from .utility_lines import UtilityReadOptions, read_utilities
-from .face_stations import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach, check_face_options,
+from .utility_settings import UtilityOptions
+from .face_settings import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach, check_face_options,
                             check_layer_strengths, check_rivers, check_support_reaches)
 from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output, Project, Reach, Surface
 from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,

@@ -12,9 +12,9 @@ from typing import Callable
 
 import numpy as np
 
-from .ground import GroundModel
-from .results import Movements, SettlementTiles
-from .route import Elements
+from ..inputs.ground import GroundModel
+from .elements import Elements
+from .movements import Movements, SettlementTiles
 from .troughs import straight_tunnel_movements, subsurface_width_ratio
 
 FIELDS = ("settlement", "ux", "uy", "exx", "eyy", "exy", "sx", "sy")

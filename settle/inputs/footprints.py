@@ -43,7 +43,7 @@ import pandas as pd
 import pyproj
 import shapely
 
-from .errors import InputError
+from ..errors import InputError
 from .tables import GIS_SUFFIXES, listing, project_transformer, read_gis_layer, shown
 
 #: E/G for each structure type, used when the project file gives no table of its own.

@@ -46,7 +46,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError, where
+from ..errors import InputError, where
 from .ground import GroundModel
 from .model import Project
 from .route import build_drive

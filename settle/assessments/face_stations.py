@@ -55,128 +55,25 @@ local codes.
 """
 from __future__ import annotations
 
-import csv
-import io
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import face
-from .errors import InputError
-from .ground import GroundModel
-from .model import Layer
-from .results import DriveResult
-from .route import MIN_COVER_DIAMETERS, position_at
+from ..errors import InputError
+from ..inputs.face_settings import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach,  # noqa: F401
+                                    check_face_options, check_layer_strengths, check_numbered_rivers,
+                                    check_support_reaches, river_label, support_label)
+from ..inputs.ground import GroundModel
+from ..inputs.route import DriveResult, position_at
+from . import face_methods as face
 
-SUPPORT_MODES = ("slurry", "air_cushion")
 STATUSES = ("open", "narrow", "closed")  # the status vocabulary, from best to worst
-FRICTION_ANGLE_RANGE_DEG = (0.0, 50.0)
-SLURRY_UNIT_WEIGHT_RANGE_KN_M3 = (face.GAMMA_W, 16.0)
 SAME_CHAINAGE_M = 1e-3  # stations closer than this are one station [m]
 STEP_M = 0.01  # a second station this far on the other side of a reach end shows the step there [m]
 LEVEL_TOLERANCE_M = 1e-3  # a river bed this little above the ground is still at the ground [m]
 
 CAUTION = ("Planning bounds only: the operating face pressures are set and reviewed by the responsible engineer, "
            "under local codes, and adjusted to what the drive shows.")
-
-
-# ------------------------------------------------------------------------------------------------------- inputs
-@dataclass(frozen=True)
-class LayerStrength:
-    """Strength of one ground layer, in the order of `Ground.layers`.
-
-    friction_angle_deg      effective friction angle phi', 0 to 50. [deg]
-    cohesion_kpa            effective cohesion c', >= 0. [kPa]
-    undrained_strength_kpa  undrained shear strength c_u, > 0: required for a cohesive layer, not allowed for a
-                            granular one. [kPa]
-    shear_modulus_mpa       shear modulus G for the Delft fracture pressure, > 0; optional (no fracture limit where
-                            the layer at the axis has none). [MPa]
-    """
-
-    friction_angle_deg: float
-    cohesion_kpa: float
-    undrained_strength_kpa: float | None = None
-    shear_modulus_mpa: float | None = None
-
-
-@dataclass(frozen=True)
-class River:
-    """Open water over part of a drive. Between the chainages (both included) the ground surface is the bed and the
-    water stands at `water_level_m` (design high water) above it."""
-
-    drive: str
-    from_chainage_m: float
-    to_chainage_m: float
-    bed_level_m: float
-    water_level_m: float
-    name: str = ""
-
-
-@dataclass(frozen=True)
-class SupportReach:
-    """Part of a drive with its own face support mode: "slurry" (plain slurry circuit) or "air_cushion" (slurry whose
-    pressure an air cushion holds)."""
-
-    from_chainage_m: float
-    to_chainage_m: float
-    mode: str
-
-
-@dataclass(frozen=True)
-class FaceOptions:
-    """Settings of the face check ([face] keys; every default documented with its status).
-
-    face_station_spacing_m        5.0   spacing of regular stations [m]; the issue's default.
-    slurry_unit_weight_kn_m3      11.0  slurry in the chamber, for crown <-> axis [kN/m^3]; within 10.5 to 12
-                                        (common practice, methods.md section 10); allowed 9.81 to 16.
-    support_mode                  "slurry"  mode where no support reach says otherwise.
-    earth_pressure_factor         1.5   on the effective support s' (DAUB style, from memory, methods.md 7.1 c).
-    water_pressure_factor         1.05  on the pore pressure (DAUB style, from memory, methods.md 7.1 c).
-    support_margin_kpa            0.0   added to the minimum [kPa]; the partial factors are the margin on the
-                                        mechanics and the tolerance is counted in the window, so none by default.
-    blowout_factor                1.1   on the uplift limit (from memory, DAUB; methods.md 7.2).
-    blowout_side_shear            False use the uplift limit with shear on the block's sides (methods.md 7.2, from
-                                        memory; "use with caution at very low cover").
-    fracture_factor               1.5   on the Delft pressure (common practice, low end of 1.5 to 2, methods.md 7.3).
-    fracture_radius_granular      0.667 largest plastic radius / cover in granular ground (2/3; from memory,
-                                        methods.md 7.3).
-    fracture_radius_cohesive      0.5   the same in cohesive ground (1/2; from memory, methods.md 7.3).
-    silo_lateral_ratio            0.8   K_s (Anagnostou & Kovari 1994, from memory, methods.md 7.1 c).
-    wedge_lateral_ratio           0.4   K_w (Anagnostou & Kovari 1994, from memory, methods.md 7.1 c).
-    critical_stability_ratio      6.0   Broms & Bennermark critical N (from memory, methods.md 7.1 a).
-    surcharge_kpa                 0.0   surface surcharge outside river reaches [kPa]; none by default.
-    tolerance_air_cushion_kpa     10.0  operating tolerance +/- with an air cushion [kPa] (methods.md 7.1 c gives
-                                        about +/-10 kPa for slurry shields, from memory).
-    tolerance_slurry_kpa          20.0  operating tolerance +/- of a plain slurry circuit [kPa]; NO SOURCE: the tool's
-                                        cautious assumption (twice the air cushion's); set it for the machine.
-    window_margin_kpa             10.0  a window narrower than this is "narrow" [kPa]; no source, the tool's default.
-    low_cover_diameters           2.0   cover below this many outer diameters is flagged (common practice,
-                                        methods.md section 10).
-    """
-
-    face_station_spacing_m: float = 5.0
-    slurry_unit_weight_kn_m3: float = 11.0
-    support_mode: str = "slurry"
-    earth_pressure_factor: float = 1.5
-    water_pressure_factor: float = 1.05
-    support_margin_kpa: float = 0.0
-    blowout_factor: float = 1.1
-    blowout_side_shear: bool = False
-    fracture_factor: float = 1.5
-    fracture_radius_granular: float = 2.0 / 3.0
-    fracture_radius_cohesive: float = 0.5
-    silo_lateral_ratio: float = face.ANAGNOSTOU_KOVARI_SILO_RATIO
-    wedge_lateral_ratio: float = face.ANAGNOSTOU_KOVARI_WEDGE_RATIO
-    critical_stability_ratio: float = face.BROMS_BENNERMARK_CRITICAL_N
-    surcharge_kpa: float = 0.0
-    tolerance_air_cushion_kpa: float = 10.0
-    tolerance_slurry_kpa: float = 20.0
-    window_margin_kpa: float = 10.0
-    low_cover_diameters: float = MIN_COVER_DIAMETERS
-
-    def tolerance_kpa(self, mode: str) -> float:
-        """Operating tolerance +/- of a support mode. [kPa]"""
-        return {"slurry": self.tolerance_slurry_kpa, "air_cushion": self.tolerance_air_cushion_kpa}[mode]
 
 
 # ------------------------------------------------------------------------------------------------------ result
@@ -246,136 +143,6 @@ class FaceStations:
     def at_axis(self, pressure_crown) -> np.ndarray:
         """A crown pressure of these stations brought to the axis through the slurry column. [kPa]"""
         return face.crown_to_axis(pressure_crown, self.slurry_unit_weight_kn_m3, self.outer_diameter_m)
-
-
-# -------------------------------------------------------------------------------------------------- validation
-def _bad(where: str, key: str, what: str, value) -> InputError:
-    shown = f'"{value}"' if isinstance(value, str) else f"{value:g}" if isinstance(value, (int, float)) else value
-    return InputError(f"{where}: {key} must be {what}; got {shown}")
-
-
-def _number(value) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and bool(np.isfinite(value))
-
-
-def check_face_options(options: FaceOptions, where: str = "project") -> None:
-    """Raise InputError naming the [face] key whose value is out of range."""
-    label = f"{where} [face]"
-    lo_gs, hi_gs = SLURRY_UNIT_WEIGHT_RANGE_KN_M3
-    rules = {
-        "face_station_spacing_m": (lambda v: v > 0, "a number of metres more than 0"),
-        "slurry_unit_weight_kn_m3": (lambda v: lo_gs <= v <= hi_gs,
-                                     f"a number from {lo_gs:g} (water) to {hi_gs:g} kN/m3"),
-        "earth_pressure_factor": (lambda v: v >= 1, "a factor of at least 1"),
-        "water_pressure_factor": (lambda v: v >= 1, "a factor of at least 1"),
-        "support_margin_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
-        "blowout_factor": (lambda v: v >= 1, "a factor of at least 1"),
-        "fracture_factor": (lambda v: v >= 1, "a factor of at least 1"),
-        "fracture_radius_granular": (lambda v: 0 < v <= 1, "a share of the cover more than 0 and at most 1"),
-        "fracture_radius_cohesive": (lambda v: 0 < v <= 1, "a share of the cover more than 0 and at most 1"),
-        "silo_lateral_ratio": (lambda v: 0 < v <= 3, "a ratio more than 0 and at most 3"),
-        "wedge_lateral_ratio": (lambda v: 0 <= v <= 3, "a ratio from 0 to 3"),
-        "critical_stability_ratio": (lambda v: v > 0, "a number more than 0"),
-        "surcharge_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
-        "tolerance_air_cushion_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
-        "tolerance_slurry_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
-        "window_margin_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
-        "low_cover_diameters": (lambda v: v > 0, "a number more than 0"),
-    }
-    for key, (ok, what) in rules.items():
-        value = getattr(options, key)
-        if not _number(value) or not ok(value):
-            raise _bad(label, key, what, value)
-    if options.support_mode not in SUPPORT_MODES:
-        raise _bad(label, "support_mode", "one of " + ", ".join(f'"{m}"' for m in SUPPORT_MODES),
-                   options.support_mode)
-    if not isinstance(options.blowout_side_shear, bool):
-        raise _bad(label, "blowout_side_shear", "true or false", options.blowout_side_shear)
-
-
-def check_layer_strengths(strengths, layers: tuple[Layer, ...], where: str = "project") -> None:
-    """Raise InputError naming the layer and key of a strength that is missing or out of range."""
-    if len(strengths) != len(layers):
-        raise InputError(f"{where} [[ground.layers]]: {len(layers)} layers but strengths for {len(strengths)}; "
-                         "give friction_angle_deg and cohesion_kpa for every layer")
-    lo, hi = FRICTION_ANGLE_RANGE_DEG
-    for n, (s, layer) in enumerate(zip(strengths, layers), 1):
-        label = f'{where} [[ground.layers]] #{n} "{layer.name}"'
-        if not _number(s.friction_angle_deg) or not lo <= s.friction_angle_deg <= hi:
-            raise _bad(label, "friction_angle_deg", f"a number of degrees from {lo:g} to {hi:g}", s.friction_angle_deg)
-        if not _number(s.cohesion_kpa) or s.cohesion_kpa < 0:
-            raise _bad(label, "cohesion_kpa", "a number of kPa at least 0", s.cohesion_kpa)
-        cu = s.undrained_strength_kpa
-        if layer.behaviour == "cohesive":
-            if cu is None:
-                raise InputError(f"{label}: undrained_strength_kpa is required for a cohesive layer (the Broms & "
-                                 "Bennermark face check needs it)")
-            if not _number(cu) or cu <= 0:
-                raise _bad(label, "undrained_strength_kpa", "a number of kPa more than 0", cu)
-        elif cu is not None:
-            raise InputError(f'{label}: undrained_strength_kpa applies only to a cohesive layer; this one is '
-                             f'"{layer.behaviour}"; got {cu:g}')
-        g = s.shear_modulus_mpa
-        if g is not None and (not _number(g) or g <= 0):
-            raise _bad(label, "shear_modulus_mpa", "a number of MPa more than 0", g)
-
-
-def _check_reach_ends(label: str, a, b) -> None:
-    if not _number(a):
-        raise _bad(label, "from_chainage_m", "a number of metres", a)
-    if not _number(b) or b <= a:
-        raise InputError(f"{label}: to_chainage_m must be more than from_chainage_m ({a:g}); got {b}")
-
-
-def check_rivers(rivers, drive_names, where: str = "project") -> None:
-    """Raise InputError for a river that names no drive, has its ends the wrong way round, a water level below its
-    bed, or overlaps another river on the same drive. (Against the drive's geometry: `face_stations`.)"""
-    for n, river in enumerate(rivers, 1):
-        if river.drive not in drive_names:
-            names = ", ".join(f'"{d}"' for d in drive_names)
-            raise InputError(f'{_river_label(where, n, river)}: drive "{river.drive}" is not a drive of the project '
-                             f"(drives: {names})")
-    _check_numbered_rivers(list(enumerate(rivers, 1)), where)
-
-
-def _check_numbered_rivers(numbered, where: str) -> None:
-    """The checks of `check_rivers` that need no drive, on (number, River) pairs."""
-    for index, (n, river) in enumerate(numbered):
-        label = _river_label(where, n, river)
-        _check_reach_ends(label, river.from_chainage_m, river.to_chainage_m)
-        if not _number(river.bed_level_m):
-            raise _bad(label, "bed_level_m", "a level in metres", river.bed_level_m)
-        if not _number(river.water_level_m) or river.water_level_m < river.bed_level_m:
-            raise InputError(f"{label}: water_level_m must not be below the bed (bed_level_m = "
-                             f"{river.bed_level_m:g}); got {river.water_level_m}")
-        for m, other in numbered[:index]:
-            if other.drive == river.drive and river.from_chainage_m < other.to_chainage_m \
-                    and other.from_chainage_m < river.to_chainage_m:
-                raise InputError(f"{label}: chainage {river.from_chainage_m:g}-{river.to_chainage_m:g} m overlaps "
-                                 f"[[rivers]] #{m} ({other.from_chainage_m:g}-{other.to_chainage_m:g} m) on the "
-                                 f'same drive "{river.drive}"')
-
-
-def check_support_reaches(reaches, drive_name: str, where: str = "project") -> None:
-    """Raise InputError for a support reach with an unknown mode, its ends the wrong way round, or an overlap."""
-    for n, reach in enumerate(reaches, 1):
-        label = _support_label(where, drive_name, n)
-        _check_reach_ends(label, reach.from_chainage_m, reach.to_chainage_m)
-        if reach.mode not in SUPPORT_MODES:
-            raise _bad(label, "mode", "one of " + ", ".join(f'"{m}"' for m in SUPPORT_MODES), reach.mode)
-        for m, other in enumerate(reaches[: n - 1], 1):
-            if reach.from_chainage_m < other.to_chainage_m and other.from_chainage_m < reach.to_chainage_m:
-                raise InputError(f"{label}: chainage {reach.from_chainage_m:g}-{reach.to_chainage_m:g} m overlaps "
-                                 f"#{m} ({other.from_chainage_m:g}-{other.to_chainage_m:g} m)")
-
-
-def _river_label(where, n, river) -> str:
-    named = f' "{river.name}"' if river.name else ""
-    return f"{where} [[rivers]] #{n}{named}"
-
-
-def _support_label(where, drive_name, n) -> str:
-    return f'{where} [[drives]] "{drive_name}" [[drives.face_support]] #{n}'
 
 
 def _check_inside(label: str, a: float, b: float, drive: DriveResult) -> None:
@@ -469,11 +236,11 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
     check_layer_strengths(strengths, layers, where)
     check_support_reaches(support_reaches, drive.name, where)
     mine = [(n, r) for n, r in enumerate(rivers, 1) if r.drive == drive.name]
-    _check_numbered_rivers(mine, where)
+    check_numbered_rivers(mine, where)
     for n, river in mine:
-        _check_inside(_river_label(where, n, river), river.from_chainage_m, river.to_chainage_m, drive)
+        _check_inside(river_label(where, n, river), river.from_chainage_m, river.to_chainage_m, drive)
     for n, reach in enumerate(support_reaches, 1):
-        _check_inside(_support_label(where, drive.name, n), reach.from_chainage_m, reach.to_chainage_m, drive)
+        _check_inside(support_label(where, drive.name, n), reach.from_chainage_m, reach.to_chainage_m, drive)
 
     d = float(drive.outer_diameter_m)
     half = d / 2.0
@@ -494,7 +261,7 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
     in_river = np.zeros(len(st), dtype=bool)
     for n, river in mine:
         inside = (st >= river.from_chainage_m - 1e-9) & (st <= river.to_chainage_m + 1e-9)
-        label = _river_label(where, n, river)
+        label = river_label(where, n, river)
         above = inside & (river.bed_level_m > ground_level + LEVEL_TOLERANCE_M)
         if above.any():
             k = int(np.argmax(above))
@@ -614,72 +381,3 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
         status=status.astype(object), low_cover=low, low_cover_limit_m=low_limit, slurry_unit_weight_kn_m3=gs,
         warnings=warnings,
     )
-
-
-# ----------------------------------------------------------------------------------------------------- outputs
-#: Fields of the GIS point layer `face_stations`, in order: the nine of the issue, then what an engineer filters on.
-FACE_STATION_FIELDS = ("drive", "chainage_m", "cover_m", "water_pressure_kpa", "support_min_kpa", "blowout_kpa",
-                       "support_max_kpa", "window_kpa", "status")
-FACE_STATION_EXTRA_FIELDS = ("support_mode", "in_river", "low_cover", "stability_ratio_n", "n_above_critical",
-                             "fracture_kpa", "max_limited_by", "min_governed_by", "total_stress_crown_kpa",
-                             "effective_stress_crown_kpa", "total_stress_axis_kpa", "effective_stress_axis_kpa",
-                             "water_pressure_axis_kpa", "tolerance_kpa")
-OPERATOR_COLUMNS = ("drive", "chainage_m", "status", "support_mode", "tolerance_kpa", "hold_from_crown_kpa",
-                    "hold_to_crown_kpa", "hold_from_axis_kpa", "hold_to_axis_kpa")
-
-
-def face_station_fields(stations: FaceStations) -> dict[str, np.ndarray]:
-    """Columns of the `face_stations` point layer (the points are at `stations.x_m`, `stations.y_m`, on the axis in
-    plan). Values as computed, not rounded."""
-    n = len(stations)
-    columns = {"drive": np.full(n, stations.drive, dtype=object)}
-    for name in FACE_STATION_FIELDS[1:] + FACE_STATION_EXTRA_FIELDS:
-        columns[name] = getattr(stations, name)
-    return columns
-
-
-def operator_rows(stations: FaceStations) -> list[dict[str, str]]:
-    """The operator's table for one drive: per station, the band of crown (and axis) pressure to hold.
-
-    The band runs from support_min + tolerance to support_max - tolerance, so that swings of +/- the tolerance stay
-    inside the window. Where the window is closed the band is left empty. Pressures to 0.1 kPa, chainage to 0.01 m.
-    """
-    lo, hi = stations.hold_from_kpa, stations.hold_to_kpa
-    lo_axis, hi_axis = stations.at_axis(lo), stations.at_axis(hi)
-    rows = []
-    for k in range(len(stations)):
-        closed = stations.status[k] == "closed"
-        cell = (lambda v: "" if closed else f"{v:.1f}")
-        rows.append({
-            "drive": stations.drive, "chainage_m": f"{stations.chainage_m[k]:.2f}", "status": str(stations.status[k]),
-            "support_mode": str(stations.support_mode[k]), "tolerance_kpa": f"{stations.tolerance_kpa[k]:.1f}",
-            "hold_from_crown_kpa": cell(lo[k]), "hold_to_crown_kpa": cell(hi[k]),
-            "hold_from_axis_kpa": cell(lo_axis[k]), "hold_to_axis_kpa": cell(hi_axis[k]),
-        })
-    return rows
-
-
-def operator_csv_text(all_stations) -> str:
-    """The operator's CSV for one or more drives: two comment lines (starting "#") with the caution of the trade and
-    how the band is made, then a header and one row per station (`operator_rows`)."""
-    out = io.StringIO()
-    out.write(f"# {CAUTION}\n")
-    out.write("# Hold the face pressure between hold_from and hold_to (kPa, at the crown; at the axis through the "
-              "slurry column); the band allows for the operating tolerance. Empty where the window is closed.\n")
-    writer = csv.DictWriter(out, fieldnames=OPERATOR_COLUMNS, lineterminator="\n")
-    writer.writeheader()
-    for stations in ([all_stations] if isinstance(all_stations, FaceStations) else all_stations):
-        writer.writerows(operator_rows(stations))
-    return out.getvalue()
-
-
-def face_summary(stations: FaceStations) -> dict[str, float | int]:
-    """Attributes for the drive's `route` feature: the smallest window and where, and station counts by status."""
-    k = int(np.nanargmin(stations.window_kpa))
-    return {
-        "face_min_window_kpa": float(stations.window_kpa[k]),
-        "face_min_window_chainage_m": float(stations.chainage_m[k]),
-        "face_closed_stations": int(np.sum(stations.status == "closed")),
-        "face_narrow_stations": int(np.sum(stations.status == "narrow")),
-        "face_low_cover_stations": int(np.sum(stations.low_cover)),
-    }

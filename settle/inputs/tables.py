@@ -29,7 +29,7 @@ import pyogrio
 import pyproj
 import shapely
 
-from .errors import InputError, where
+from ..errors import InputError, where
 from .model import Points, Surface
 
 GIS_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp")

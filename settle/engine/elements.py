@@ -1,13 +1,10 @@
-"""Route geometry: the 3-D tunnel axis of each drive, its chainage, depth and cover, and its tunnel elements.
+"""Tunnel elements: the excavated length of each drive cut into straight, level lengths.
 
-The axis is the polyline through the given vertices (straight in 3-D between vertices). Chainage is measured along
-the 3-D axis from the launch shaft (the first vertex), starting at the drive's `start_chainage_m`.
-
-Tunnel elements are straight, level lengths of the excavated tunnel on which `troughs.straight_tunnel_movements`
-is evaluated and superposed. They are cut wherever the alignment bends, the volume loss or trough width changes (a
-reach), at the face, and wherever the depth below the ground changes by more than `DEPTH_TOLERANCE` of itself; long
-straight lengths stay one element. Each element carries the lost volume of its 3-D length spread over its plan
-length, so the settlement volume of the superposed troughs equals the volume lost along the excavated length.
+`troughs.straight_tunnel_movements` is evaluated and superposed on each element. They are cut wherever the alignment
+bends, the volume loss or trough width changes (a reach), at the face, and wherever the depth below the ground
+changes by more than `DEPTH_TOLERANCE` of itself; long straight lengths stay one element. Each element carries the
+lost volume of its 3-D length spread over its plan length, so the settlement volume of the superposed troughs equals
+the volume lost along the excavated length.
 """
 from __future__ import annotations
 
@@ -15,18 +12,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
-from .ground import GroundModel
-from .model import Drive
-from .results import DriveResult
+from ..inputs.ground import GroundModel
+from ..inputs.model import Drive
+from ..inputs.route import DriveResult, position_at, stations_along
 from .troughs import excavated_area
 
 #: An element's axis depth may vary by at most this share of itself (its trough width varies alike).
 DEPTH_TOLERANCE = 0.02
 #: An element's chord may depart from the axis in plan by at most this share of its trough width.
 PLAN_TOLERANCE = 0.002
-#: Cover below this multiple of the outer diameter is warned about (a rule of thumb of the trade, common practice).
-MIN_COVER_DIAMETERS = 2.0
 
 
 @dataclass
@@ -66,111 +60,6 @@ class Elements:
         return Elements(**{k: np.concatenate([getattr(p, k) for p in parts]) for k in Elements.__dataclass_fields__})
 
 
-def axis_levels(drive: Drive, ground: GroundModel) -> np.ndarray:
-    """Level of the tunnel axis at each vertex, from axis levels, invert levels or depths below ground. [m]"""
-    v = np.asarray(drive.alignment_v, dtype=float)
-    if drive.vertical == "axis":
-        return v
-    if drive.vertical == "invert":
-        return v + drive.inner_diameter_m / 2.0
-    surface = ground.surface_level(drive.alignment_xy[:, 0], drive.alignment_xy[:, 1])
-    return surface - v
-
-
-def chainage(axis_xyz: np.ndarray, start_m: float = 0.0) -> np.ndarray:
-    """Chainage of each vertex along the 3-D axis. [m]"""
-    steps = np.linalg.norm(np.diff(axis_xyz, axis=0), axis=1)
-    return start_m + np.concatenate([[0.0], np.cumsum(steps)])
-
-
-def position_at(axis_xyz: np.ndarray, chain: np.ndarray, at_m) -> np.ndarray:
-    """Points on the 3-D axis at the given chainages, (n, 3). [m]"""
-    at_m = np.asarray(at_m, dtype=float)
-    return np.column_stack([np.interp(at_m, chain, axis_xyz[:, k]) for k in range(3)])
-
-
-def _station_chainages(chain: np.ndarray, breaks: np.ndarray, spacing_m: float) -> np.ndarray:
-    """Vertices, breaks and regular stations between them, sorted and unique."""
-    regular = np.arange(chain[0], chain[-1], spacing_m)
-    return np.unique(np.concatenate([chain, breaks, regular]))
-
-
-def build_drive(drive: Drive, ground: GroundModel, project_file="") -> tuple[DriveResult, list[str]]:
-    """Axis, chainage, depth and cover of one drive, with the checks an engineer expects; returns warnings."""
-    label = f'{project_file} [[drives]] "{drive.name}"'
-    xyz = np.column_stack([drive.alignment_xy, axis_levels(drive, ground)])
-    surface = ground.surface_level(xyz[:, 0], xyz[:, 1])
-    chain = chainage(xyz, drive.start_chainage_m)
-    if np.isnan(surface).any() or np.isnan(xyz[:, 2]).any():
-        k = int(np.flatnonzero(np.isnan(surface) | np.isnan(xyz[:, 2]))[0])
-        raise InputError(
-            f"{label}: the alignment leaves the triangulated ground surface ({ground.ground.surface.source}) "
-            f"at chainage {chain[k]:.1f} m (vertex {k + 1}, x={xyz[k, 0]:.1f}, y={xyz[k, 1]:.1f}); "
-            "extend surface_points to cover the whole route"
-        )
-
-    # Check cover at regular stations too: a triangulated surface may dip between vertices.
-    stations = _station_chainages(chain, np.empty(0), 1.0)
-    at = position_at(xyz, chain, stations)
-    s_level = ground.surface_level(at[:, 0], at[:, 1])
-    cover = s_level - at[:, 2] - drive.outer_diameter_m / 2.0
-    if np.nanmin(cover) <= 0.0:
-        k = int(np.nanargmin(cover))
-        raise InputError(
-            f"{label}: the crown is above the ground surface at chainage {stations[k]:.1f} m "
-            f"(cover {cover[k]:.2f} m; axis level {at[k, 2]:.2f} m, surface {s_level[k]:.2f} m); check the "
-            f"alignment's vertical values ({drive.vertical}) and the ground surface"
-        )
-
-    warnings = []
-    shallow = cover < MIN_COVER_DIAMETERS * drive.outer_diameter_m
-    if shallow.any():
-        runs = _runs(stations, shallow)
-        where = ", ".join(f"{a:.0f}-{b:.0f} m" for a, b in runs[:6]) + (" ..." if len(runs) > 6 else "")
-        warnings.append(
-            f'drive "{drive.name}": cover is less than {MIN_COVER_DIAMETERS:g} x the outer diameter '
-            f"({MIN_COVER_DIAMETERS * drive.outer_diameter_m:.2f} m; a rule of thumb of the trade) at chainage "
-            f"{where}; smallest {np.min(cover):.2f} m"
-        )
-
-    if drive.face_chainage_m is not None and not chain[0] <= drive.face_chainage_m <= chain[-1]:
-        raise InputError(
-            f"{label}: face_chainage_m = {drive.face_chainage_m:g} is outside the drive "
-            f"(chainage {chain[0]:.2f} to {chain[-1]:.2f} m)"
-        )
-    for n, reach in enumerate(drive.reaches, 1):
-        if reach.from_chainage_m < chain[0] - 1e-6 or reach.to_chainage_m > chain[-1] + 1e-6:
-            raise InputError(
-                f"{label} [[drives.reaches]] #{n}: chainage {reach.from_chainage_m:g}-{reach.to_chainage_m:g} m "
-                f"is outside the drive (chainage {chain[0]:.2f} to {chain[-1]:.2f} m)"
-            )
-
-    face = chain[-1] if drive.face_chainage_m is None else float(drive.face_chainage_m)
-    result = DriveResult(
-        name=drive.name,
-        outer_diameter_m=drive.outer_diameter_m,
-        axis_xyz_m=xyz,
-        chainage_m=chain,
-        surface_level_m=surface,
-        axis_depth_m=surface - xyz[:, 2],
-        cover_m=surface - xyz[:, 2] - drive.outer_diameter_m / 2.0,
-        face_chainage_m=drive.face_chainage_m,
-        excavated_to_m=face,
-        lost_volume_m3=0.0,
-        element_count=0,
-        profile_chainage_m=stations,
-        profile_ground_m=s_level,
-        profile_axis_m=at[:, 2],
-    )
-    return result, warnings
-
-
-def _runs(x: np.ndarray, flag: np.ndarray) -> list[tuple[float, float]]:
-    """Ranges of x where flag is set."""
-    edges = np.diff(np.concatenate([[0], flag.astype(int), [0]]))
-    starts, stops = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1
-    return [(float(x[a]), float(x[b])) for a, b in zip(starts, stops)]
-
 
 def reach_values(drive: Drive, chain_mid: np.ndarray):
     """Volume loss (fraction) and trough width factor override (NaN = from the layers) at chainages."""
@@ -196,7 +85,7 @@ def tunnel_elements(drive: Drive, geometry: DriveResult, ground: GroundModel, in
 
     # Stations: every hard break and regular points between, close enough to follow the ground surface.
     spacing = float(np.clip(np.min(geometry.axis_depth_m) / 4.0, 0.5, 2.0))
-    st = _station_chainages(np.array([chain[0], face]), hard, spacing)
+    st = stations_along(np.array([chain[0], face]), hard, spacing)
     p = position_at(xyz, chain, st)
     s_level = ground.surface_level(p[:, 0], p[:, 1])
     z0 = s_level - p[:, 2]

@@ -31,17 +31,8 @@ from __future__ import annotations
 
 import numpy as np
 
-#: Unit weight of water. [kN/m^3] (methods.md section 7 check values use 9.81.)
-GAMMA_W = 9.81
-#: Broms & Bennermark (1967) critical stability ratio: the face is taken as stable for N <= 6 (from memory,
-#: methods.md section 7.1 a).
-BROMS_BENNERMARK_CRITICAL_N = 6.0
-#: Lateral stress ratio in the silo above the wedge, about 0.8 in Anagnostou & Kovari (1994) (from memory,
-#: methods.md section 7.1 c).
-ANAGNOSTOU_KOVARI_SILO_RATIO = 0.8
-#: Lateral stress ratio on the triangular sides of the wedge, about 0.4 in Anagnostou & Kovari (1994) (from memory,
-#: methods.md section 7.1 c).
-ANAGNOSTOU_KOVARI_WEDGE_RATIO = 0.4
+from ..inputs.published_defaults import (  # noqa: F401  (the method's own constants, named here too)
+    ANAGNOSTOU_KOVARI_SILO_RATIO, ANAGNOSTOU_KOVARI_WEDGE_RATIO, BROMS_BENNERMARK_CRITICAL_N, GAMMA_W)
 
 _ANGLE_GRID_DEG = np.linspace(1.0, 89.0, 89)  # first search of the wedge angle, every degree
 _REFINE_ROUNDS = 4  # each round narrows the bracket tenfold: 1 deg -> 1e-4 deg

@@ -1,29 +1,22 @@
-"""Learning from monitoring, after the back-analysis (`settle.fitting`): monitored cross-sections, their troughs, and
-the forecast for what lies ahead of the face.
+"""Monitored cross-sections after the back-analysis (`settle.monitoring.fitting`), and their troughs.
 
-- Monitored cross-sections: each monitored point is placed on its drive by the chainage of the foot of its
-  perpendicular (`fitting.point_chainage_m`) and its signed offset (left of the drive positive). Points whose
-  chainages lie within `SECTION_GAP_M` of each other form one section; a section needs `SECTION_MIN_POINTS` points.
-  Its troughs are the design model and the fitted model, evaluated along the section line at the face of the
-  section's latest reading, at the surface.
-- Forecast: the buildings and utilities ahead of the face are assessed again with the fitted volume loss and K, both
-  runs with every drive complete (the final state the engineer must approve), and each is marked where its damage
-  category or status changed. "Ahead of the face": the foot of the perpendicular from the item (the footprint's inner
-  point, or the pipe's middle) to its nearest drive lies beyond that drive's latest face in the readings.
+Each monitored point is placed on its drive by the chainage of the foot of its perpendicular
+(`fitting.point_chainage_m`) and its signed offset (left of the drive positive). Points whose chainages lie within
+`SECTION_GAP_M` of each other form one section; a section needs `SECTION_MIN_POINTS` points. Its troughs are the design
+model and the fitted model, evaluated along the section line at the face of the section's latest reading, at the
+surface.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
 import numpy as np
-import shapely
 
-from .assessment import Assessment
+from ..inputs.ground import GroundModel
+from ..inputs.model import Project
+from ..inputs.readings import Readings
+from ..inputs.route import build_drive, position_at
 from .fitting import BackAnalysis, apply_fits, point_chainage_m, predicted_settlement_mm
-from .ground import GroundModel
-from .model import Project
-from .readings import Readings
-from .route import build_drive, position_at
 
 SECTION_GAP_M = 3.0  # points closer than this in chainage belong to one section [m]; our choice
 SECTION_MIN_POINTS = 3  # fewer monitored points do not make a trough to draw
@@ -99,57 +92,3 @@ def monitored_sections(project: Project, readings: Readings, analysis: BackAnaly
                                     reading_mm=readings.settlement_mm[r], profile_offset_m=line, design_mm=design,
                                     fitted_mm=fitted_line))
     return sections
-
-
-FORECAST_FIELDS = ("kind", "id", "drive", "chainage_m", "design", "forecast", "changed")
-
-
-def forecast_ahead(project: Project, readings: Readings, analysis: BackAnalysis) -> list[dict]:
-    """Buildings and utilities ahead of the face, assessed with the design and the fitted values (drives complete).
-
-    Returns one row per item ahead of the face: kind ("building" | "utility"), id, drive, chainage_m (of the foot of
-    the perpendicular), design and forecast category (buildings) or status (utilities), and whether it changed.
-    """
-    if project.buildings is None and project.utilities is None:
-        return []
-    complete = replace(project, drives=tuple(replace(d, face_chainage_m=None) for d in project.drives),
-                       strengths=())
-    runs = [Assessment(p).route().buildings().utilities() for p in (complete, apply_fits(complete, analysis.fits))]
-    design, forecast = runs
-    latest_face = {}
-    for d, name in enumerate(project.drives):
-        faces = readings.face_chainage_m[readings.drive == d]
-        if len(faces):
-            latest_face[d] = float(faces[np.argmax(readings.date[readings.drive == d])])
-    items = []
-    if project.buildings is not None:
-        inner = shapely.point_on_surface(np.asarray(project.buildings.polygons, dtype=object))
-        items.append(("building", project.buildings.ids, shapely.get_x(inner), shapely.get_y(inner),
-                      [str(c) for c in design.building_results.category],
-                      [str(c) for c in forecast.building_results.category]))
-    if project.utilities is not None:
-        middle = shapely.line_interpolate_point(
-            np.array([shapely.LineString(line) for line in project.utilities.lines_xy], dtype=object), 0.5,
-            normalized=True)
-        items.append(("utility", project.utilities.ids, shapely.get_x(middle), shapely.get_y(middle),
-                      list(design.utility_results.status), list(forecast.utility_results.status)))
-    rows = []
-    drives = runs[0].drives
-    for kind, ids, x, y, before, after in items:
-        chains = np.array([point_chainage_m(g, x, y) for g in drives])
-        distance = np.array([_distance_to_axis(g, x, y) for g in drives])
-        nearest = np.argmin(distance, axis=0)
-        for k, pid in enumerate(ids):
-            d = int(nearest[k])
-            if d not in latest_face or chains[d, k] <= latest_face[d]:
-                continue
-            rows.append({"kind": kind, "id": pid, "drive": project.drives[d].name,
-                         "chainage_m": round(float(chains[d, k]), 2), "design": before[k], "forecast": after[k],
-                         "changed": before[k] != after[k]})
-    return rows
-
-
-def _distance_to_axis(geometry, x, y) -> np.ndarray:
-    """Plan distance from places to a drive's axis. [m]"""
-    line = shapely.LineString(geometry.axis_xyz_m[:, :2])
-    return shapely.distance(line, shapely.points(np.asarray(x), np.asarray(y)))

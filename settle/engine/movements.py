@@ -1,4 +1,4 @@
-"""What a run returns: plain arrays with units in every name.
+"""Greenfield movements as the engine returns them: plain arrays with units in every name.
 
 Sign conventions, kept throughout the project:
 - settlement positive downward;
@@ -13,7 +13,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .model import Project
 
 
 @dataclass
@@ -87,54 +86,3 @@ class SettlementTiles:
     origin_y_m: float
     size: int
     settlement_mm: dict[tuple[int, int], np.ndarray] = field(default_factory=dict)
-
-
-@dataclass
-class DriveResult:
-    """A drive's geometry as computed, with its checks."""
-
-    name: str
-    outer_diameter_m: float
-    axis_xyz_m: np.ndarray  # vertices of the tunnel axis (n x 3), launch shaft first
-    chainage_m: np.ndarray  # at each vertex, along the 3-D axis, from start_chainage_m
-    surface_level_m: np.ndarray  # ground surface above each vertex
-    axis_depth_m: np.ndarray  # depth of the axis below the surface
-    cover_m: np.ndarray  # surface to crown
-    face_chainage_m: float | None  # None = complete
-    excavated_to_m: float  # chainage of the face used in the run (end of drive when complete)
-    lost_volume_m3: float  # sum over the excavated length of VL x pi D^2/4
-    element_count: int
-    # The profile along the axis, every metre of chainage and at every vertex (for sections and figures).
-    profile_chainage_m: np.ndarray = field(default_factory=lambda: np.empty(0))
-    profile_ground_m: np.ndarray = field(default_factory=lambda: np.empty(0))  # ground surface level
-    profile_axis_m: np.ndarray = field(default_factory=lambda: np.empty(0))  # axis level
-
-    @property
-    def start_chainage_m(self) -> float:
-        return float(self.chainage_m[0])
-
-    @property
-    def end_chainage_m(self) -> float:
-        return float(self.chainage_m[-1])
-
-
-@dataclass
-class Result:
-    """Everything a run computed. Arrays, no files."""
-
-    project: Project
-    drives: list[DriveResult]
-    grid: Movements  # every grid node with settlement >= Output.grid_threshold_mm
-    tiles: SettlementTiles
-    points: Movements | None
-    point_ids: tuple[str, ...]
-    settlement_volume_m3: float  # volume of the surface trough, summed over the grid
-    warnings: list[str]
-    timings_s: dict[str, float] = field(default_factory=dict)
-    face: list = field(default_factory=list)  # settle.face_stations.FaceStations per drive, when the check ran
-    utilities: object | None = None  # settle.pipelines.UtilityResults, when the project has [utilities]
-    buildings: object | None = None  # settle.buildings.BuildingResults, when the project has [buildings]
-
-    @property
-    def lost_volume_m3(self) -> float:
-        return float(sum(d.lost_volume_m3 for d in self.drives))

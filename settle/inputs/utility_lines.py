@@ -43,7 +43,7 @@ from typing import Callable
 import numpy as np
 import shapely
 
-from .errors import InputError
+from ..errors import InputError
 from .tables import (GIS_SUFFIXES, PLAN_TOLERANCE_M, listing, project_transformer, read_gis_layer, shown,
                      single_line)
 

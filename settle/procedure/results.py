@@ -1,0 +1,43 @@
+"""What a run returns: plain arrays with units in every name.
+
+Sign conventions, kept throughout the project:
+- settlement positive downward;
+- horizontal displacement `ux_mm` east (+x), `uy_mm` north (+y) of the project CRS;
+- horizontal strain tensile positive, in microstrain (1e-6); the tensor is the symmetric small-strain tensor
+  (`strain_xy_ue` is the tensor component, half the engineering shear strain);
+- slope (tilt) is the magnitude of the gradient of settlement, dimensionless (1/500 = 0.002).
+
+`Movements` and `SettlementTiles` come from the engine (`settle.engine.movements`) and `DriveResult` from the route
+(`settle.inputs.route`); they are named here too, as the types a `Result` holds.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from ..engine.movements import Movements, SettlementTiles, principal_strains
+from ..inputs.model import Project
+from ..inputs.route import DriveResult
+
+__all__ = ["DriveResult", "Movements", "Result", "SettlementTiles", "principal_strains"]
+
+
+@dataclass
+class Result:
+    """Everything a run computed. Arrays, no files."""
+
+    project: Project
+    drives: list[DriveResult]
+    grid: Movements  # every grid node with settlement >= Output.grid_threshold_mm
+    tiles: SettlementTiles
+    points: Movements | None
+    point_ids: tuple[str, ...]
+    settlement_volume_m3: float  # volume of the surface trough, summed over the grid
+    warnings: list[str]
+    timings_s: dict[str, float] = field(default_factory=dict)
+    face: list = field(default_factory=list)  # settle.face_stations.FaceStations per drive, when the check ran
+    utilities: object | None = None  # settle.pipelines.UtilityResults, when the project has [utilities]
+    buildings: object | None = None  # settle.buildings.BuildingResults, when the project has [buildings]
+
+    @property
+    def lost_volume_m3(self) -> float:
+        return float(sum(d.lost_volume_m3 for d in self.drives))
