@@ -53,68 +53,79 @@ def face_section_png(stations: FaceStations, drive: DriveResult, path, layers=()
     -------
     Path  The absolute path written.
     """
-    c = stations.chainage_m
     fig, (sec, cov, prs) = plt.subplots(3, 1, sharex=True, figsize=(11.0, 8.5),
                                         gridspec_kw={"height_ratios": [3.0, 1.2, 3.0]})
     try:
-        # 1. Section.
-        sec.plot(c, stations.ground_level_m, color=GROUND, lw=1.5, label="ground surface")
-        for a, b in _runs(stations.in_river):
-            s = slice(a, b + 1)
-            sec.fill_between(c[s], stations.surface_level_m[s], stations.water_level_m[s], color=WATER, alpha=0.35,
-                             lw=0, label="river" if a == _runs(stations.in_river)[0][0] else None)
-            sec.plot(c[s], stations.surface_level_m[s], color=GROUND, lw=1.5, ls="--")
-        dry = np.where(stations.in_river, np.nan, stations.water_level_m)
-        sec.plot(c, dry, color=WATER, lw=1.0, ls=":", label="water table")
-        sec.fill_between(c, stations.invert_level_m, stations.crown_level_m, color=TUNNEL, alpha=0.5, lw=0,
-                         label=f"tunnel, D = {stations.outer_diameter_m:g} m")
-        sec.plot(drive.chainage_m, drive.axis_xyz_m[:, 2], color="k", lw=0.6, ls="-.", label="axis")
-        for layer in list(layers)[1:]:
-            below = np.where(stations.surface_level_m > layer.top_level_m, layer.top_level_m, np.nan)
-            sec.plot(c, below, color=GROUND, lw=0.6, alpha=0.7)
-            sec.annotate(layer.name, (c[-1], layer.top_level_m), textcoords="offset points", xytext=(-3, 3),
-                         fontsize=6.5, color=GROUND, ha="right")
-        sec.set_ylabel("level (m)")
-        sec.set_title(f"{stations.drive}: section and face support window")
-        sec.legend(loc="lower left", fontsize=7, ncol=3)
-        sec.grid(alpha=0.3)
-
-        # 2. Cover.
-        cov.plot(c, stations.cover_m, color="k", lw=1.2, label="cover to crown")
-        cov.axhline(stations.low_cover_limit_m, color=CLOSED, lw=0.8, ls="--",
-                    label=f"low-cover limit {stations.low_cover_limit_m:.2f} m")
-        for a, b in _runs(stations.low_cover):
-            cov.axvspan(c[a], c[b], color=CLOSED, alpha=0.12, lw=0)
-        k = int(np.argmin(stations.cover_m))
-        cov.annotate(f"{stations.cover_m[k]:.2f} m", (c[k], stations.cover_m[k]), textcoords="offset points",
-                     xytext=(4, 4), fontsize=7)
-        cov.set_ylabel("cover (m)")
-        cov.legend(loc="upper right", fontsize=7)
-        cov.grid(alpha=0.3)
-
-        # 3. Pressures at the crown.
-        lo, hi = stations.hold_from_kpa, stations.hold_to_kpa
-        prs.fill_between(c, lo, hi, where=hi >= lo, color=BAND, alpha=0.5, lw=0, interpolate=True,
-                         label="band to hold (with tolerance)")
-        prs.plot(c, stations.support_min_kpa, color=MINIMUM, lw=1.5, label="minimum support")
-        prs.plot(c, stations.support_max_kpa, color=MAXIMUM, lw=1.5, label="maximum support")
-        prs.plot(c, stations.blowout_kpa, color=MAXIMUM, lw=0.8, ls="--", label="blow-out (total stress)")
-        if np.isfinite(stations.fracture_kpa).any():
-            prs.plot(c, stations.fracture_kpa, color="purple", lw=0.8, ls=":", label="fracture (Delft)")
-        prs.plot(c, stations.water_pressure_kpa, color=WATER, lw=0.8, label="water pressure")
-        closed = stations.status == "closed"
-        if closed.any():
-            prs.scatter(c[closed], stations.support_min_kpa[closed], color=CLOSED, s=12, zorder=5,
-                        label="window closed")
-        prs.set_ylabel("pressure at crown (kPa)")
-        prs.set_xlabel("chainage (m)")
-        prs.legend(loc="upper right", fontsize=7, ncol=2)
-        prs.grid(alpha=0.3)
-        prs.set_xlim(drive.start_chainage_m, drive.end_chainage_m)
+        _section_panel(sec, stations, drive, layers)
+        _cover_panel(cov, stations)
+        _pressure_panel(prs, stations, drive)
         fig.text(0.01, 0.005, CAUTION, fontsize=6.5, color="0.3")
         fig.tight_layout(rect=(0, 0.02, 1, 1))
-
     except BaseException:
         plt.close(fig)
         raise
     return save_png(fig, path, dpi)
+
+
+def _section_panel(sec, stations: FaceStations, drive: DriveResult, layers) -> None:
+    """Panel 1: ground surface, river bed and water, water table, the tunnel and its axis, and the layer tops."""
+    c = stations.chainage_m
+    sec.plot(c, stations.ground_level_m, color=GROUND, lw=1.5, label="ground surface")
+    for a, b in _runs(stations.in_river):
+        s = slice(a, b + 1)
+        sec.fill_between(c[s], stations.surface_level_m[s], stations.water_level_m[s], color=WATER, alpha=0.35,
+                         lw=0, label="river" if a == _runs(stations.in_river)[0][0] else None)
+        sec.plot(c[s], stations.surface_level_m[s], color=GROUND, lw=1.5, ls="--")
+    dry = np.where(stations.in_river, np.nan, stations.water_level_m)
+    sec.plot(c, dry, color=WATER, lw=1.0, ls=":", label="water table")
+    sec.fill_between(c, stations.invert_level_m, stations.crown_level_m, color=TUNNEL, alpha=0.5, lw=0,
+                     label=f"tunnel, D = {stations.outer_diameter_m:g} m")
+    sec.plot(drive.chainage_m, drive.axis_xyz_m[:, 2], color="k", lw=0.6, ls="-.", label="axis")
+    for layer in list(layers)[1:]:
+        below = np.where(stations.surface_level_m > layer.top_level_m, layer.top_level_m, np.nan)
+        sec.plot(c, below, color=GROUND, lw=0.6, alpha=0.7)
+        sec.annotate(layer.name, (c[-1], layer.top_level_m), textcoords="offset points", xytext=(-3, 3),
+                     fontsize=6.5, color=GROUND, ha="right")
+    sec.set_ylabel("level (m)")
+    sec.set_title(f"{stations.drive}: section and face support window")
+    sec.legend(loc="lower left", fontsize=7, ncol=3)
+    sec.grid(alpha=0.3)
+
+
+def _cover_panel(cov, stations: FaceStations) -> None:
+    """Panel 2: cover to the crown [m], the low-cover limit and the low-cover stations shaded, the least cover."""
+    c = stations.chainage_m
+    cov.plot(c, stations.cover_m, color="k", lw=1.2, label="cover to crown")
+    cov.axhline(stations.low_cover_limit_m, color=CLOSED, lw=0.8, ls="--",
+                label=f"low-cover limit {stations.low_cover_limit_m:.2f} m")
+    for a, b in _runs(stations.low_cover):
+        cov.axvspan(c[a], c[b], color=CLOSED, alpha=0.12, lw=0)
+    k = int(np.argmin(stations.cover_m))
+    cov.annotate(f"{stations.cover_m[k]:.2f} m", (c[k], stations.cover_m[k]), textcoords="offset points",
+                 xytext=(4, 4), fontsize=7)
+    cov.set_ylabel("cover (m)")
+    cov.legend(loc="upper right", fontsize=7)
+    cov.grid(alpha=0.3)
+
+
+def _pressure_panel(prs, stations: FaceStations, drive: DriveResult) -> None:
+    """Panel 3: the pressures at the crown [kPa] (support band, blow-out, fracture, water) and the closed windows."""
+    c = stations.chainage_m
+    lo, hi = stations.hold_from_kpa, stations.hold_to_kpa
+    prs.fill_between(c, lo, hi, where=hi >= lo, color=BAND, alpha=0.5, lw=0, interpolate=True,
+                     label="band to hold (with tolerance)")
+    prs.plot(c, stations.support_min_kpa, color=MINIMUM, lw=1.5, label="minimum support")
+    prs.plot(c, stations.support_max_kpa, color=MAXIMUM, lw=1.5, label="maximum support")
+    prs.plot(c, stations.blowout_kpa, color=MAXIMUM, lw=0.8, ls="--", label="blow-out (total stress)")
+    if np.isfinite(stations.fracture_kpa).any():
+        prs.plot(c, stations.fracture_kpa, color="purple", lw=0.8, ls=":", label="fracture (Delft)")
+    prs.plot(c, stations.water_pressure_kpa, color=WATER, lw=0.8, label="water pressure")
+    closed = stations.status == "closed"
+    if closed.any():
+        prs.scatter(c[closed], stations.support_min_kpa[closed], color=CLOSED, s=12, zorder=5,
+                    label="window closed")
+    prs.set_ylabel("pressure at crown (kPa)")
+    prs.set_xlabel("chainage (m)")
+    prs.legend(loc="upper right", fontsize=7, ncol=2)
+    prs.grid(alpha=0.3)
+    prs.set_xlim(drive.start_chainage_m, drive.end_chainage_m)

@@ -11,7 +11,7 @@ The procedure, for one drive (`face_stations`):
    river's `bed_level_m` and the river's `water_level_m` stands above it. Cover is measured from that surface to the
    crown. The water table is the river's water level in a river reach; elsewhere the groundwater level, taken at the
    ground surface where it stands above it (a warning says where: open water there belongs in [[rivers]]).
-3. Stresses (`settle.face.vertical_stress`): each layer's `unit_weight_kn_m3` is its total unit weight, above and
+3. Stresses (`face_methods.vertical_stress`): each layer's `unit_weight_kn_m3` is its total unit weight, above and
    below the water table alike; pore pressure is hydrostatic below the water table and zero above it (no suction).
    Free water over a river bed adds gamma_w h_w to the total stress and to the pore pressure.
 4. Minimum support at the crown, `support_min_kpa`:
@@ -56,6 +56,7 @@ local codes.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 
@@ -211,6 +212,278 @@ def _runs(chain, flag) -> str:
     return text + (" ..." if len(starts) > 6 else "")
 
 
+class _Places(NamedTuple):
+    """Where the stations are and what stands above them. [m]"""
+
+    chainage_m: np.ndarray
+    x_m: np.ndarray
+    y_m: np.ndarray
+    axis_m: np.ndarray
+    crown_m: np.ndarray
+    invert_m: np.ndarray
+    ground_m: np.ndarray  # the ground surface model
+    surface_m: np.ndarray  # the ground, or the river bed in a river reach
+    water_m: np.ndarray  # water table (river water level in a river reach)
+    in_river: np.ndarray  # bool
+    cover_m: np.ndarray  # surface (bed) to crown
+
+
+class _Stresses(NamedTuple):
+    """Vertical stresses and pore pressures at the crown, axis and invert. [kPa]"""
+
+    total_crown: np.ndarray
+    water_crown: np.ndarray
+    effective_crown: np.ndarray
+    total_axis: np.ndarray
+    water_axis: np.ndarray
+    effective_axis: np.ndarray
+    water_invert: np.ndarray
+
+
+class _Layers(NamedTuple):
+    """The layers' properties as arrays, one entry per layer, top down."""
+
+    tops_m: np.ndarray
+    unit_weight_kn_m3: np.ndarray
+    friction_deg: np.ndarray
+    cohesion_kpa: np.ndarray
+    undrained_kpa: np.ndarray  # NaN where not given
+    shear_modulus_kpa: np.ndarray  # NaN where not given
+    cohesive: np.ndarray  # bool
+
+
+def _check_inputs(drive: DriveResult, strengths, layers, rivers, options: FaceOptions, support_reaches,
+                  where: str) -> list:
+    """Check the settings, strengths, support reaches and rivers; return this drive's rivers with their numbers."""
+    check_face_options(options, where)
+    check_layer_strengths(strengths, layers, where)
+    check_support_reaches(support_reaches, drive.name, where)
+    mine = [(n, r) for n, r in enumerate(rivers, 1) if r.drive == drive.name]
+    check_numbered_rivers(mine, where)
+    for n, river in mine:
+        _check_inside(river_label(where, n, river), river.from_chainage_m, river.to_chainage_m, drive)
+    for n, reach in enumerate(support_reaches, 1):
+        _check_inside(support_label(where, drive.name, n), reach.from_chainage_m, reach.to_chainage_m, drive)
+    return mine
+
+
+def _place_stations(drive: DriveResult, ground: GroundModel, mine, options: FaceOptions, support_reaches,
+                    where: str):
+    """The stations' chainage, x, y and axis level, and the ground surface level there. [m]"""
+    st = station_chainages(drive, ground, [r for _, r in mine], options.face_station_spacing_m, support_reaches)
+    p = position_at(drive.axis_xyz_m, drive.chainage_m, st)
+    x, y, axis = p[:, 0], p[:, 1], p[:, 2]
+    ground_level = np.asarray(ground.surface_level(x, y), dtype=float)
+    if np.isnan(ground_level).any():
+        k = int(np.argmax(np.isnan(ground_level)))
+        raise InputError(f'{where} [[drives]] "{drive.name}": station at chainage {st[k]:.1f} m is outside the '
+                         f"ground surface ({ground.ground.surface.source}); extend the surface points")
+    return st, x, y, axis, ground_level
+
+
+def _surface_and_water(mine, st, crown, ground_level, gw: float, where: str):
+    """Surface level, water table [m] and the in-river flag at each station, river reaches taking bed and water."""
+    surface = ground_level.copy()
+    water = np.minimum(gw, ground_level)
+    in_river = np.zeros(len(st), dtype=bool)
+    for n, river in mine:
+        inside = (st >= river.from_chainage_m - 1e-9) & (st <= river.to_chainage_m + 1e-9)
+        label = river_label(where, n, river)
+        above = inside & (river.bed_level_m > ground_level + LEVEL_TOLERANCE_M)
+        if above.any():
+            k = int(np.argmax(above))
+            raise InputError(f"{label}: bed_level_m must not be above the ground surface; the surface is "
+                             f"{ground_level[k]:.2f} m at chainage {st[k]:.1f} m; got {river.bed_level_m:g}")
+        over = inside & (crown >= river.bed_level_m)
+        if over.any():
+            k = int(np.argmax(over))
+            raise InputError(f"{label}: bed_level_m must be above the tunnel crown ({crown[k]:.2f} m at chainage "
+                             f"{st[k]:.1f} m); got {river.bed_level_m:g}")
+        surface[inside] = river.bed_level_m
+        water[inside] = river.water_level_m
+        in_river |= inside
+    return surface, water, in_river
+
+
+def _check_crown_below_surface(drive: DriveResult, st, crown, surface, where: str) -> None:
+    """Refuse a station whose crown is at or above the surface."""
+    if (crown >= surface).any():
+        k = int(np.argmax(crown >= surface))
+        raise InputError(f'{where} [[drives]] "{drive.name}": the crown is above the ground surface at chainage '
+                         f"{st[k]:.1f} m (crown {crown[k]:.2f} m, surface {surface[k]:.2f} m)")
+
+
+def _groundwater_above_surface_warnings(drive: DriveResult, st, gw: float, ground_level, in_river) -> list[str]:
+    """A warning where the groundwater level stands above the ground outside any river reach."""
+    capped = ~in_river & (gw > ground_level)
+    if not capped.any():
+        return []
+    return [(f'drive "{drive.name}": groundwater_level_m ({gw:g} m) is above the ground surface at chainage '
+             f"{_runs(st, capped)} outside any river reach; the face check takes the water table at the surface "
+             "there and counts no free water. If there is open water, describe it with [[rivers]].")]
+
+
+def _stations_and_places(drive: DriveResult, ground: GroundModel, mine, options: FaceOptions, support_reaches,
+                         where: str):
+    """Steps 1-2: the stations, their positions, surface, water table and cover, and the warnings on the water."""
+    d = float(drive.outer_diameter_m)
+    half = d / 2.0
+    gw = float(ground.ground.groundwater_level_m)
+    st, x, y, axis, ground_level = _place_stations(drive, ground, mine, options, support_reaches, where)
+    crown, invert = axis + half, axis - half
+    surface, water, in_river = _surface_and_water(mine, st, crown, ground_level, gw, where)
+    _check_crown_below_surface(drive, st, crown, surface, where)
+    warnings = _groundwater_above_surface_warnings(drive, st, gw, ground_level, in_river)
+    cover = surface - crown
+    places = _Places(chainage_m=st, x_m=x, y_m=y, axis_m=axis, crown_m=crown, invert_m=invert, ground_m=ground_level,
+                     surface_m=surface, water_m=water, in_river=in_river, cover_m=cover)
+    return places, warnings
+
+
+def _layer_table(layers, strengths) -> _Layers:
+    """The layers' levels, weights and strengths as arrays. [m, kN/m3, deg, kPa]"""
+    return _Layers(
+        tops_m=np.array([layer.top_level_m for layer in layers], dtype=float),
+        unit_weight_kn_m3=np.array([layer.unit_weight_kn_m3 for layer in layers], dtype=float),
+        friction_deg=np.array([s.friction_angle_deg for s in strengths], dtype=float),
+        cohesion_kpa=np.array([s.cohesion_kpa for s in strengths], dtype=float),
+        undrained_kpa=np.array([np.nan if s.undrained_strength_kpa is None else s.undrained_strength_kpa
+                                for s in strengths]),
+        shear_modulus_kpa=np.array([np.nan if s.shear_modulus_mpa is None else s.shear_modulus_mpa * 1e3
+                                    for s in strengths]),
+        cohesive=np.array([layer.behaviour == "cohesive" for layer in layers]))
+
+
+def _stresses(places: _Places, lay: _Layers) -> _Stresses:
+    """Step 3: total and effective vertical stress and pore pressure at the crown, axis and invert. [kPa]"""
+    surface, water, tops, gamma = places.surface_m, places.water_m, lay.tops_m, lay.unit_weight_kn_m3
+    tot_c, u_c, eff_c = face.vertical_stress(places.crown_m, surface, water, tops, gamma)
+    tot_a, u_a, eff_a = face.vertical_stress(places.axis_m, surface, water, tops, gamma)
+    _, u_i, _ = face.vertical_stress(places.invert_m, surface, water, tops, gamma)
+    return _Stresses(total_crown=tot_c, water_crown=u_c, effective_crown=eff_c, total_axis=tot_a, water_axis=u_a,
+                     effective_axis=eff_a, water_invert=u_i)
+
+
+def _cover_segments(places: _Places, lay: _Layers):
+    """The cover cut into segments: thickness [m], layer index and effective unit weight [kN/m3]."""
+    t_cov, j_cov, wet_cov = _segments(places.surface_m, places.crown_m, lay.tops_m, places.water_m)
+    g_cov = lay.unit_weight_kn_m3[j_cov] - face.GAMMA_W * wet_cov
+    return t_cov, j_cov, g_cov
+
+
+def _wedge_silo_minimum(d: float, places: _Places, s: _Stresses, cover_segments, q, lay: _Layers,
+                        options: FaceOptions):
+    """Drained minimum: wedge-silo s', wedge angle, silo stress and the factored requirement at the crown. [kPa]"""
+    t_cov, j_cov, g_cov = cover_segments
+    gamma, phi_l, c_l = lay.unit_weight_kn_m3, lay.friction_deg, lay.cohesion_kpa
+    t_face, j_face, wet_face = _segments(places.crown_m, places.invert_m, lay.tops_m, places.water_m)
+    g_face = (t_face * (gamma[j_face] - face.GAMMA_W * wet_face)).sum(axis=1) / d
+    present = t_face > 0
+    phi_face = np.where(present, phi_l[j_face], np.inf).min(axis=1)
+    c_face = np.where(present, c_l[j_face], np.inf).min(axis=1)
+    s_eff, angle, silo = face.anagnostou_kovari_support(
+        d, d, g_face, phi_face, c_face, t_cov, g_cov, phi_l[j_cov], c_l[j_cov],
+        options.silo_lateral_ratio, options.wedge_lateral_ratio, q)
+    earth = options.earth_pressure_factor * np.clip(s_eff, 0.0, None)
+    fw, gs = options.water_pressure_factor, options.slurry_unit_weight_kn_m3
+    drained = np.maximum.reduce([fw * s.water_crown + earth,
+                                 face.axis_to_crown(fw * s.water_axis + earth, gs, d),
+                                 fw * s.water_invert + earth - gs * d])  # the invert is D below the crown
+    return s_eff, angle, silo, drained
+
+
+def _axis_layer(axis, lay: _Layers):
+    """The layer at the axis: its index, whether it is cohesive, and its undrained strength (NaN if not). [kPa]"""
+    j_axis = _layer_index(axis, lay.tops_m)
+    clay = lay.cohesive[j_axis]
+    cu = np.where(clay, lay.undrained_kpa[j_axis], np.nan)
+    return j_axis, clay, cu
+
+
+def _broms_bennermark_minimum(d: float, tot_a, clay, cu, q, options: FaceOptions):
+    """Undrained minimum where the axis is in clay: stability ratio N and the requirement at the crown. [-, kPa]"""
+    gs = options.slurry_unit_weight_kn_m3
+    with np.errstate(invalid="ignore"):
+        n_ratio = np.where(clay, face.broms_bennermark_stability_ratio(tot_a, np.where(clay, cu, 1.0), 0.0, q), np.nan)
+    undrained = np.where(clay, face.axis_to_crown(
+        face.broms_bennermark_support(tot_a, np.where(clay, cu, 0.0), options.critical_stability_ratio, q), gs, d),
+        -np.inf)
+    return n_ratio, undrained
+
+
+def _uplift_limit(d: float, s: _Stresses, cover_segments, lay: _Layers, options: FaceOptions):
+    """Blow-out with side shear, unfactored, and the factored uplift limit at the crown. [kPa]"""
+    t_cov, j_cov, g_cov = cover_segments
+    tot_c = s.total_crown
+    shear = face.uplift_resistance_with_shear(tot_c, d, t_cov, g_cov, lay.friction_deg[j_cov], lay.cohesion_kpa[j_cov])
+    uplift = (shear if options.blowout_side_shear else tot_c) / options.blowout_factor
+    return shear, uplift
+
+
+def _fracture_at_crown(d: float, cover, s: _Stresses, j_axis, clay, cu, lay: _Layers, options: FaceOptions):
+    """Delft fracture pressure brought to the crown, unfactored (NaN where the axis layer has no G), and has-G. [kPa]"""
+    half = d / 2.0
+    g_axis = lay.shear_modulus_kpa[j_axis]
+    has_g = np.isfinite(g_axis)
+    ratio = np.where(clay, options.fracture_radius_cohesive, options.fracture_radius_granular)
+    plastic = np.maximum(ratio * cover, half)
+    safe_g = np.where(has_g, g_axis, 1.0)
+    p_axis = np.where(clay,
+                      face.delft_fracture_pressure_undrained(s.total_axis, np.where(clay, cu, 1.0), safe_g, half,
+                                                             plastic),
+                      face.delft_fracture_pressure(s.effective_axis, s.water_axis, lay.friction_deg[j_axis],
+                                                   lay.cohesion_kpa[j_axis], safe_g, half, plastic))
+    fracture = np.where(has_g, face.axis_to_crown(p_axis, options.slurry_unit_weight_kn_m3, d), np.nan)
+    return fracture, has_g
+
+
+def _maximum_support(uplift, fracture, options: FaceOptions):
+    """The smaller of the factored uplift and fracture limits, and which one it is. [kPa]"""
+    fracture_limit = fracture / options.fracture_factor
+    support_max = np.fmin(uplift, fracture_limit)
+    max_by = np.where(fracture_limit < uplift, "fracture", "uplift_shear" if options.blowout_side_shear else "blowout")
+    return support_max, max_by
+
+
+def _no_fracture_warnings(drive: DriveResult, st, layers, j_axis, has_g) -> list[str]:
+    """A warning where the layer at the axis has no shear modulus, so no fracture limit."""
+    if not (~has_g).any():
+        return []
+    names = sorted({layers[j].name for j in j_axis[~has_g]})
+    return [(f'drive "{drive.name}": no shear_modulus_mpa for layer(s) {", ".join(names)} at the axis; '
+             f"no fracture limit at chainage {_runs(st, ~has_g)} (the uplift limit alone)")]
+
+
+def _support_modes(st, options: FaceOptions, support_reaches):
+    """Support mode and operating tolerance at each station. [kPa]"""
+    # A support reach holds from its start up to (not including) its end; the end of the drive takes the mode
+    # just before it.
+    mode = np.full(len(st), options.support_mode, dtype=object)
+    at = np.where(st >= st[-1], st - SAME_CHAINAGE_M, st)
+    for reach in support_reaches:
+        mode[(at >= reach.from_chainage_m) & (at < reach.to_chainage_m)] = reach.mode
+    tol = np.array([options.tolerance_kpa(m) for m in mode])
+    return mode, tol
+
+
+def _window_and_status(support_min, support_max, tol, options: FaceOptions):
+    """The room left to choose the target crown pressure [kPa] and its status."""
+    window = support_max - support_min - 2.0 * tol
+    status = np.where(window < 0, "closed", np.where(window < options.window_margin_kpa, "narrow", "open"))
+    return window, status
+
+
+def _window_warnings(drive: DriveResult, st, window, status) -> list[str]:
+    """A warning for each closed or narrow run of stations, with its smallest window."""
+    warnings = []
+    for word in ("closed", "narrow"):
+        hit = status == word
+        if hit.any():
+            warnings.append(f'drive "{drive.name}": face support window {word} at chainage {_runs(st, hit)}; '
+                            f"smallest window {window[hit].min():.1f} kPa")
+    return warnings
+
+
 def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(), options: FaceOptions | None = None,
                   support_reaches=(), where: str = "project") -> FaceStations:
     """Minimum and maximum face support pressure, and the window between them, at stations along one drive.
@@ -232,152 +505,45 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
     """
     options = options or FaceOptions()
     layers = ground.ground.layers
-    check_face_options(options, where)
-    check_layer_strengths(strengths, layers, where)
-    check_support_reaches(support_reaches, drive.name, where)
-    mine = [(n, r) for n, r in enumerate(rivers, 1) if r.drive == drive.name]
-    check_numbered_rivers(mine, where)
-    for n, river in mine:
-        _check_inside(river_label(where, n, river), river.from_chainage_m, river.to_chainage_m, drive)
-    for n, reach in enumerate(support_reaches, 1):
-        _check_inside(support_label(where, drive.name, n), reach.from_chainage_m, reach.to_chainage_m, drive)
-
+    mine = _check_inputs(drive, strengths, layers, rivers, options, support_reaches, where)
     d = float(drive.outer_diameter_m)
-    half = d / 2.0
-    gw = float(ground.ground.groundwater_level_m)
-    st = station_chainages(drive, ground, [r for _, r in mine], options.face_station_spacing_m, support_reaches)
-    p = position_at(drive.axis_xyz_m, drive.chainage_m, st)
-    x, y, axis = p[:, 0], p[:, 1], p[:, 2]
-    crown, invert = axis + half, axis - half
-    ground_level = np.asarray(ground.surface_level(x, y), dtype=float)
-    if np.isnan(ground_level).any():
-        k = int(np.argmax(np.isnan(ground_level)))
-        raise InputError(f'{where} [[drives]] "{drive.name}": station at chainage {st[k]:.1f} m is outside the '
-                         f"ground surface ({ground.ground.surface.source}); extend the surface points")
+    places, warnings = _stations_and_places(drive, ground, mine, options, support_reaches, where)
+    lay = _layer_table(layers, strengths)
+    s = _stresses(places, lay)
 
-    warnings: list[str] = []
-    surface = ground_level.copy()
-    water = np.minimum(gw, ground_level)
-    in_river = np.zeros(len(st), dtype=bool)
-    for n, river in mine:
-        inside = (st >= river.from_chainage_m - 1e-9) & (st <= river.to_chainage_m + 1e-9)
-        label = river_label(where, n, river)
-        above = inside & (river.bed_level_m > ground_level + LEVEL_TOLERANCE_M)
-        if above.any():
-            k = int(np.argmax(above))
-            raise InputError(f"{label}: bed_level_m must not be above the ground surface; the surface is "
-                             f"{ground_level[k]:.2f} m at chainage {st[k]:.1f} m; got {river.bed_level_m:g}")
-        over = inside & (crown >= river.bed_level_m)
-        if over.any():
-            k = int(np.argmax(over))
-            raise InputError(f"{label}: bed_level_m must be above the tunnel crown ({crown[k]:.2f} m at chainage "
-                             f"{st[k]:.1f} m); got {river.bed_level_m:g}")
-        surface[inside] = river.bed_level_m
-        water[inside] = river.water_level_m
-        in_river |= inside
-    if (crown >= surface).any():
-        k = int(np.argmax(crown >= surface))
-        raise InputError(f'{where} [[drives]] "{drive.name}": the crown is above the ground surface at chainage '
-                         f"{st[k]:.1f} m (crown {crown[k]:.2f} m, surface {surface[k]:.2f} m)")
-    capped = ~in_river & (gw > ground_level)
-    if capped.any():
-        warnings.append(
-            f'drive "{drive.name}": groundwater_level_m ({gw:g} m) is above the ground surface at chainage '
-            f"{_runs(st, capped)} outside any river reach; the face check takes the water table at the surface "
-            "there and counts no free water. If there is open water, describe it with [[rivers]].")
-    cover = surface - crown
-
-    tops = np.array([layer.top_level_m for layer in layers], dtype=float)
-    gamma = np.array([layer.unit_weight_kn_m3 for layer in layers], dtype=float)
-    phi_l = np.array([s.friction_angle_deg for s in strengths], dtype=float)
-    c_l = np.array([s.cohesion_kpa for s in strengths], dtype=float)
-    cu_l = np.array([np.nan if s.undrained_strength_kpa is None else s.undrained_strength_kpa for s in strengths])
-    g_l = np.array([np.nan if s.shear_modulus_mpa is None else s.shear_modulus_mpa * 1e3 for s in strengths])
-    cohesive_l = np.array([layer.behaviour == "cohesive" for layer in layers])
-
-    # Stresses at the crown, axis and invert.
-    tot_c, u_c, eff_c = face.vertical_stress(crown, surface, water, tops, gamma)
-    tot_a, u_a, eff_a = face.vertical_stress(axis, surface, water, tops, gamma)
-    _, u_i, _ = face.vertical_stress(invert, surface, water, tops, gamma)
-
-    # Minimum, drained: wedge and silo.
-    t_cov, j_cov, wet_cov = _segments(surface, crown, tops, water)
-    g_cov = gamma[j_cov] - face.GAMMA_W * wet_cov
-    t_face, j_face, wet_face = _segments(crown, invert, tops, water)
-    g_face = (t_face * (gamma[j_face] - face.GAMMA_W * wet_face)).sum(axis=1) / d
-    present = t_face > 0
-    phi_face = np.where(present, phi_l[j_face], np.inf).min(axis=1)
-    c_face = np.where(present, c_l[j_face], np.inf).min(axis=1)
-    q = np.where(in_river, 0.0, options.surcharge_kpa)
-    s_eff, angle, silo = face.anagnostou_kovari_support(
-        d, d, g_face, phi_face, c_face, t_cov, g_cov, phi_l[j_cov], c_l[j_cov],
-        options.silo_lateral_ratio, options.wedge_lateral_ratio, q)
-    earth = options.earth_pressure_factor * np.clip(s_eff, 0.0, None)
-    fw, gs = options.water_pressure_factor, options.slurry_unit_weight_kn_m3
-    drained = np.maximum.reduce([fw * u_c + earth,
-                                 face.axis_to_crown(fw * u_a + earth, gs, d),
-                                 fw * u_i + earth - gs * d])  # the invert is D below the crown
-
-    # Minimum, undrained: Broms & Bennermark where the axis is in a cohesive layer.
-    j_axis = _layer_index(axis, tops)
-    clay = cohesive_l[j_axis]
-    cu = np.where(clay, cu_l[j_axis], np.nan)
-    with np.errstate(invalid="ignore"):
-        n_ratio = np.where(clay, face.broms_bennermark_stability_ratio(tot_a, np.where(clay, cu, 1.0), 0.0, q), np.nan)
-    undrained = np.where(clay, face.axis_to_crown(
-        face.broms_bennermark_support(tot_a, np.where(clay, cu, 0.0), options.critical_stability_ratio, q), gs, d),
-        -np.inf)
+    # Minimum: wedge-silo (drained); Broms & Bennermark (undrained) where the axis is in a cohesive layer.
+    cover_segments = _cover_segments(places, lay)
+    q = np.where(places.in_river, 0.0, options.surcharge_kpa)
+    s_eff, angle, silo, drained = _wedge_silo_minimum(d, places, s, cover_segments, q, lay, options)
+    j_axis, clay, cu = _axis_layer(places.axis_m, lay)
+    n_ratio, undrained = _broms_bennermark_minimum(d, s.total_axis, clay, cu, q, options)
     support_min = np.maximum(drained, undrained) + options.support_margin_kpa
     min_by = np.where(undrained > drained, "broms_bennermark", "wedge_silo")
 
     # Maximum: uplift (with or without side shear) and fracture.
-    shear = face.uplift_resistance_with_shear(tot_c, d, t_cov, g_cov, phi_l[j_cov], c_l[j_cov])
-    uplift = (shear if options.blowout_side_shear else tot_c) / options.blowout_factor
-    g_axis = g_l[j_axis]
-    has_g = np.isfinite(g_axis)
-    ratio = np.where(clay, options.fracture_radius_cohesive, options.fracture_radius_granular)
-    plastic = np.maximum(ratio * cover, half)
-    safe_g = np.where(has_g, g_axis, 1.0)
-    p_axis = np.where(clay,
-                      face.delft_fracture_pressure_undrained(tot_a, np.where(clay, cu, 1.0), safe_g, half, plastic),
-                      face.delft_fracture_pressure(eff_a, u_a, phi_l[j_axis], c_l[j_axis], safe_g, half, plastic))
-    fracture = np.where(has_g, face.axis_to_crown(p_axis, gs, d), np.nan)
-    fracture_limit = fracture / options.fracture_factor
-    support_max = np.fmin(uplift, fracture_limit)
-    max_by = np.where(fracture_limit < uplift, "fracture", "uplift_shear" if options.blowout_side_shear else "blowout")
-    if (~has_g).any():
-        names = sorted({layers[j].name for j in j_axis[~has_g]})
-        warnings.append(f'drive "{drive.name}": no shear_modulus_mpa for layer(s) {", ".join(names)} at the axis; '
-                        f"no fracture limit at chainage {_runs(st, ~has_g)} (the uplift limit alone)")
+    shear, uplift = _uplift_limit(d, s, cover_segments, lay, options)
+    fracture, has_g = _fracture_at_crown(d, places.cover_m, s, j_axis, clay, cu, lay, options)
+    support_max, max_by = _maximum_support(uplift, fracture, options)
+    warnings += _no_fracture_warnings(drive, places.chainage_m, layers, j_axis, has_g)
 
     # Window.
-    # A support reach holds from its start up to (not including) its end; the end of the drive takes the mode
-    # just before it.
-    mode = np.full(len(st), options.support_mode, dtype=object)
-    at = np.where(st >= st[-1], st - SAME_CHAINAGE_M, st)
-    for reach in support_reaches:
-        mode[(at >= reach.from_chainage_m) & (at < reach.to_chainage_m)] = reach.mode
-    tol = np.array([options.tolerance_kpa(m) for m in mode])
-    window = support_max - support_min - 2.0 * tol
-    status = np.where(window < 0, "closed", np.where(window < options.window_margin_kpa, "narrow", "open"))
+    mode, tol = _support_modes(places.chainage_m, options, support_reaches)
+    window, status = _window_and_status(support_min, support_max, tol, options)
     low_limit = options.low_cover_diameters * d
-    low = cover < low_limit
-    for word in ("closed", "narrow"):
-        hit = status == word
-        if hit.any():
-            warnings.append(f'drive "{drive.name}": face support window {word} at chainage {_runs(st, hit)}; '
-                            f"smallest window {window[hit].min():.1f} kPa")
+    warnings += _window_warnings(drive, places.chainage_m, window, status)
 
     return FaceStations(
-        drive=drive.name, outer_diameter_m=d, chainage_m=st, x_m=x, y_m=y, axis_level_m=axis,
-        ground_level_m=ground_level, surface_level_m=surface, water_level_m=water, in_river=in_river,
-        cover_m=cover, total_stress_crown_kpa=tot_c, effective_stress_crown_kpa=eff_c,
-        total_stress_axis_kpa=tot_a, effective_stress_axis_kpa=eff_a, water_pressure_kpa=u_c,
-        water_pressure_axis_kpa=u_a, wedge_support_kpa=s_eff, wedge_angle_deg=angle, wedge_silo_stress_kpa=silo,
+        drive=drive.name, outer_diameter_m=d, chainage_m=places.chainage_m, x_m=places.x_m, y_m=places.y_m,
+        axis_level_m=places.axis_m, ground_level_m=places.ground_m, surface_level_m=places.surface_m,
+        water_level_m=places.water_m, in_river=places.in_river, cover_m=places.cover_m,
+        total_stress_crown_kpa=s.total_crown, effective_stress_crown_kpa=s.effective_crown,
+        total_stress_axis_kpa=s.total_axis, effective_stress_axis_kpa=s.effective_axis,
+        water_pressure_kpa=s.water_crown, water_pressure_axis_kpa=s.water_axis, wedge_support_kpa=s_eff,
+        wedge_angle_deg=angle, wedge_silo_stress_kpa=silo,
         stability_ratio_n=n_ratio, n_above_critical=np.nan_to_num(n_ratio) > options.critical_stability_ratio,
-        support_min_kpa=support_min, min_governed_by=min_by.astype(object), blowout_kpa=tot_c,
+        support_min_kpa=support_min, min_governed_by=min_by.astype(object), blowout_kpa=s.total_crown,
         uplift_with_shear_kpa=shear, fracture_kpa=fracture, support_max_kpa=support_max,
         max_limited_by=max_by.astype(object), support_mode=mode, tolerance_kpa=tol, window_kpa=window,
-        status=status.astype(object), low_cover=low, low_cover_limit_m=low_limit, slurry_unit_weight_kn_m3=gs,
-        warnings=warnings,
+        status=status.astype(object), low_cover=places.cover_m < low_limit, low_cover_limit_m=low_limit,
+        slurry_unit_weight_kn_m3=options.slurry_unit_weight_kn_m3, warnings=warnings,
     )

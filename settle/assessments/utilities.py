@@ -290,14 +290,8 @@ def assess_utilities(utilities: Utilities, movements: Callable[..., Movements],
     return _verdict(utilities, UtilityProfiles(**values), options)
 
 
-def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> UtilityResults:
-    """Per-pipe demands, utilisations and status from the profiles."""
-    n, pipe = len(u), prof.pipe
-    crossing = np.bincount(pipe, weights=prof.undefined, minlength=n) > 0
-    keep = ~crossing[pipe]  # places of crossing pipes count for nothing
-    masked = lambda v: np.where(keep, v, np.nan)  # noqa: E731
-    bending, axial = masked(prof.bending_strain_ue), masked(prof.axial_strain_ue)
-    rotation, opening = masked(np.abs(prof.joint_rotation_deg)), masked(prof.joint_opening_mm)
+def _check_utilisations(u: Utilities, pipe: np.ndarray, n: int, bending, axial, rotation, opening):
+    """Per check of `CHECKS`, the largest demand/allowable per pipe [-] and the index of its place (-1: none)."""
     both_ways = u.checks_compression[pipe]
     axial_counted = np.where(both_ways, np.abs(axial), np.maximum(axial, 0.0))
     fibre_counted = np.where(both_ways, np.abs(axial), axial) + bending
@@ -319,7 +313,12 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
         _, at_demand = _group_argmax(demand[c], pipe, n)
         check_utilisation[c] = best
         check_place[c] = np.where(at >= 0, at, at_demand)
+    return check_utilisation, check_place
 
+
+def _governing_check(check_utilisation: dict, check_place: dict, chainage_m: np.ndarray, n: int):
+    """Per pipe, the largest check utilisation [-], whether any check was made, the governing check's words and the
+    chainage of its place [m] (NaN when none)."""
     table = np.column_stack([check_utilisation[c] for c, _ in CHECKS])
     table_w = np.where(np.isnan(table), -np.inf, table)
     governing_k = np.argmax(table_w, axis=1)
@@ -329,21 +328,30 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
     governing = tuple(CHECKS[k][1] if ok else "" for k, ok in zip(governing_k, checked))
     place = np.array([check_place[CHECKS[k][0]][p] if ok else -1 for p, (k, ok) in enumerate(zip(governing_k,
                                                                                                   checked))], int)
-    governing_chainage = np.where(place >= 0, prof.chainage_m[np.maximum(place, 0)], np.nan)
+    governing_chainage = np.where(place >= 0, chainage_m[np.maximum(place, 0)], np.nan)
+    return utilisation, checked, governing, governing_chainage
 
+
+def _status(crossing: np.ndarray, checked: np.ndarray, utilisation: np.ndarray, near_limit_fraction: float):
+    """One of `STATUSES` per pipe, from its utilisation [-]."""
     status = []
-    for p in range(n):
+    for p in range(len(crossing)):
         if crossing[p]:
             status.append(CROSSES)
         elif not checked[p]:
             status.append(NOT_CHECKED)
         elif utilisation[p] > 1.0:
             status.append(EXCEEDS)
-        elif utilisation[p] >= options.near_limit_fraction:
+        elif utilisation[p] >= near_limit_fraction:
             status.append(NEAR)
         else:
             status.append(WITHIN)
+    return tuple(status)
 
+
+def _checks_without_limit(u: Utilities):
+    """Per check prefix, which pipes the check applies to and which have no allowable value for it (bool arrays)."""
+    n = len(u)
     jointed = u.jointed
     applies = {"bending": np.ones(n, bool), "axial": np.ones(n, bool), "fibre": np.ones(n, bool),
                "joint_rotation": jointed, "joint_opening": jointed}
@@ -351,13 +359,11 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
                 "joint_rotation": np.isnan(u.allowable_joint_rotation_deg),
                 "joint_opening": np.isnan(u.allowable_joint_opening_mm)}
     no_limit["fibre"] = no_limit["bending"] | no_limit["axial"]
-    not_checked = tuple(", ".join(w for c, w in CHECKS if applies[c][p] and no_limit[c][p]) for p in range(n))
+    return applies, no_limit
 
-    group = lambda v: _group_argmax(v, pipe, n)[0]  # noqa: E731
-    max_opening = group(opening)
-    undefined_s = np.where(prof.undefined, prof.chainage_m, np.nan)
-    crossing_range = np.column_stack([-group(-undefined_s), group(undefined_s)])
 
+def _crossing_warnings(u: Utilities, crossing: np.ndarray, crossing_range: np.ndarray) -> list[str]:
+    """A warning for each pipe that crosses the tunnel, with the chainages below the crown [m]."""
     warnings = []
     for p in np.flatnonzero(crossing):
         a, b = crossing_range[p]
@@ -365,8 +371,14 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
                         "along the pipe it lies at or below the crown of a drive, where the greenfield subsurface trough is "
                         "not defined; no strains are given for it: refer it to the asset owner for a separate "
                         "assessment")
+    return warnings
+
+
+def _no_limit_warnings(u: Utilities, crossing: np.ndarray, applies: dict, no_limit: dict) -> list[str]:
+    """A warning per check that applies to some pipes outside the tunnel but has no allowable value on them."""
+    warnings = []
     for c, words in CHECKS:
-        short = [u.ids[p] for p in range(n) if applies[c][p] and no_limit[c][p] and not crossing[p]]
+        short = [u.ids[p] for p in range(len(u)) if applies[c][p] and no_limit[c][p] and not crossing[p]]
         if short:
             listed = ", ".join(shown(i) for i in short[:10]) + (" ..." if len(short) > 10 else "")
             keys = ("allowable_bending_strain_ue and allowable_axial_strain_ue" if c == "fibre"
@@ -374,6 +386,30 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
             warnings.append(f"{len(short)} utilit{'y has' if len(short) == 1 else 'ies have'} no allowable {words} "
                             f"(no default for the material and none given on the pipe), so it is not checked for "
                             f"it; give {keys} on: {listed}")
+    return warnings
+
+
+def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> UtilityResults:
+    """Per-pipe demands, utilisations and status from the profiles."""
+    n, pipe = len(u), prof.pipe
+    crossing = np.bincount(pipe, weights=prof.undefined, minlength=n) > 0
+    keep = ~crossing[pipe]  # places of crossing pipes count for nothing
+    masked = lambda v: np.where(keep, v, np.nan)  # noqa: E731
+    bending, axial = masked(prof.bending_strain_ue), masked(prof.axial_strain_ue)
+    rotation, opening = masked(np.abs(prof.joint_rotation_deg)), masked(prof.joint_opening_mm)
+
+    check_utilisation, check_place = _check_utilisations(u, pipe, n, bending, axial, rotation, opening)
+    utilisation, checked, governing, governing_chainage = _governing_check(check_utilisation, check_place,
+                                                                           prof.chainage_m, n)
+    status = _status(crossing, checked, utilisation, options.near_limit_fraction)
+    applies, no_limit = _checks_without_limit(u)
+    not_checked = tuple(", ".join(w for c, w in CHECKS if applies[c][p] and no_limit[c][p]) for p in range(n))
+
+    group = lambda v: _group_argmax(v, pipe, n)[0]  # noqa: E731
+    max_opening = group(opening)
+    undefined_s = np.where(prof.undefined, prof.chainage_m, np.nan)
+    crossing_range = np.column_stack([-group(-undefined_s), group(undefined_s)])
+    warnings = _crossing_warnings(u, crossing, crossing_range) + _no_limit_warnings(u, crossing, applies, no_limit)
 
     return UtilityResults(
         ids=u.ids,
@@ -391,7 +427,7 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
         utilisation=utilisation,
         governing_check=governing,
         governing_chainage_m=governing_chainage,
-        status=tuple(status),
+        status=status,
         not_checked=not_checked,
         crossing_chainage_m=crossing_range,
         profiles=prof,

@@ -148,146 +148,223 @@ def read_readings(path, project: Project) -> Readings:
     table = read_csv(path)
     table.require(*REQUIRED)
     names = tuple(d.name for d in project.drives)
+    _check_columns(path, table, names, project.points)
+    span = _chainage_spans(project)
+    kept, left_out = _check_rows(table, names, span, project.points)
+    return _build_readings(kept, left_out, names, path)
+
+
+def _check_columns(path: Path, table, names: tuple[str, ...], points) -> None:
+    """Raise an InputError when the columns (or the [points] table) cannot give each reading a drive and a place."""
     if len(names) > 1 and not table.has("drive"):
         raise InputError(f"{path}: missing column \"drive\"; the project has {len(names)} drives "
                          f"({', '.join(map(shown, names))}), so each reading must name its drive")
     has_xy = table.has("x") or table.has("y")
     if has_xy:
         table.require("x", "y")
-    points = project.points
     if not has_xy and points is None:
         raise InputError(f"{path}: no x, y columns and the project has no [points] table to find the points in; "
                          "give x and y (and depth_m for points below the surface)")
     if len(table) == 0:
         raise InputError(f"{path}: no readings below the header")
 
+
+def _chainage_spans(project: Project) -> list[tuple[float, float]]:
+    """Each drive's start and end chainage [m], in project order."""
     ground = GroundModel(project.ground)
     label = project.path.name if project.path else "project"
     span = []
     for drive in project.drives:
         geometry, _ = build_drive(drive, ground, label)
         span.append((geometry.start_chainage_m, geometry.end_chainage_m))
-    table_place = {}
-    if points is not None:
-        table_place = {pid: (float(x), float(y), float(z))
-                       for pid, x, y, z in zip(points.ids, points.x_m, points.y_m, points.depth_m)}
-    column = {name: table.header.index(name) for name in table.header if name}
+    return span
 
+
+def _places_in_table(points) -> dict[str, tuple[float, float, float]]:
+    """Point id -> x, y [m, project CRS] and depth [m] from the project's [points] table (empty without one)."""
+    if points is None:
+        return {}
+    return {pid: (float(x), float(y), float(z))
+            for pid, x, y, z in zip(points.ids, points.x_m, points.y_m, points.depth_m)}
+
+
+class _PointHistory:
+    """What the rows kept so far say about each point: its place, its latest date, its dates and its faces."""
+
+    def __init__(self) -> None:
+        self.place_of: dict[str, tuple] = {}  # point -> x, y, line of the row that placed it, depth
+        self.last_of: dict[str, tuple[np.datetime64, int]] = {}  # point -> latest date, its line
+        self.seen: dict[tuple[str, np.datetime64], int] = {}  # (point, date) -> line
+        self.face_of: dict[tuple[str, int], tuple[float, int]] = {}  # (point, drive) -> face, line
+
+    def record(self, pid: str, x: float, y: float, depth: float, date: np.datetime64, face: float, d: int,
+               line: int) -> None:
+        """Note a kept reading: place [m] and depth [m] (first row only), date, and face chainage [m] on drive d."""
+        self.place_of.setdefault(pid, (x, y, line, depth))
+        self.last_of[pid] = (date, line)
+        self.seen[(pid, date)] = line
+        self.face_of[(pid, d)] = (face, line)
+
+
+def _check_rows(table, names: tuple[str, ...], span: list[tuple[float, float]], points) -> tuple[dict, list]:
+    """Check the file row by row: the values of the rows kept (by column) and the rows left out, in file order."""
+    table_place = _places_in_table(points)
+    column = {name: table.header.index(name) for name in table.header if name}
+    has_drive = table.has("drive")
     kept: dict[str, list] = {k: [] for k in ("point_id", "x", "y", "depth", "date", "s", "face", "drive", "line")}
     left_out: list[LeftOut] = []
-    place_of: dict[str, tuple] = {}  # point -> x, y, line of the row that placed it, depth
-    last_of: dict[str, tuple[np.datetime64, int]] = {}  # point -> latest date, its line
-    seen: dict[tuple[str, np.datetime64], int] = {}  # (point, date) -> line
-    face_of: dict[tuple[str, int], tuple[float, int]] = {}  # (point, drive) -> face, line
-
+    history = _PointHistory()
     for line, cells in zip(table.lines, table.cells):
         line = int(line)
         cell = {name: cells[c] for name, c in column.items()}
-
-        def leave(reason: str) -> None:
+        reading, reason = _reading_of_row(cell, line, has_drive, names, span, table_place, points, history)
+        if reason:
             left_out.append(LeftOut(line, reason))
-
-        pid = cell["point_id"]
-        if pid == "":
-            leave("point_id is empty")
             continue
-        if table.has("drive") and cell["drive"] != "":
-            if cell["drive"] not in names:
-                leave(f"drive {shown(cell['drive'])} is not a drive of the project; drives: "
-                      f"{', '.join(map(shown, names))}")
-                continue
-            d = names.index(cell["drive"])
-        elif len(names) > 1:
-            leave(f"drive is empty; the project has {len(names)} drives, so each reading must name its drive")
-            continue
-        else:
-            d = 0
-        s, problem = _number(cell["settlement_mm"], "settlement_mm")
-        if problem:
-            leave(problem)
-            continue
-        face, problem = _number(cell["face_chainage_m"], "face_chainage_m")
-        if problem:
-            leave(problem)
-            continue
-        lo, hi = span[d]
-        if not lo - CHAINAGE_TOLERANCE_M <= face <= hi + CHAINAGE_TOLERANCE_M:
-            leave(f"face_chainage_m {face:g} is outside drive {shown(names[d])} (chainage {lo:.2f} to {hi:.2f} m)")
-            continue
-        face = min(max(face, lo), hi)
-        try:
-            date = parse_date(cell["date"])
-        except ValueError:
-            leave(f"date {shown(cell['date'])} is not an ISO 8601 date (YYYY-MM-DD, optionally with a time "
-                  "THH:MM[:SS] and an offset such as +01:00 or Z)")
-            continue
-
-        # Where the point is.
-        listed = table_place.get(pid)
-        placed = place_of.get(pid)
-        xy_cells = (cell.get("x", ""), cell.get("y", ""))
-        if xy_cells == ("", "") and listed is None and placed is not None:
-            x, y = placed[0], placed[1]  # placed by an earlier row of the file
-        elif xy_cells == ("", ""):
-            if listed is None:
-                known = "the project has no [points] table" if points is None else \
-                    f"it is not in the [points] table ({points.source})"
-                leave(f"point {shown(pid)}: the row gives no x, y and {known}")
-                continue
-            x, y = listed[0], listed[1]
-        elif "" in xy_cells:
-            leave(f"point {shown(pid)}: give both x and y, or neither (to take them from the [points] table)")
-            continue
-        else:
-            x, problem = _number(xy_cells[0], "x")
-            y, problem_y = _number(xy_cells[1], "y")
-            if problem or problem_y:
-                leave(problem or problem_y)
-                continue
-            if listed is not None and np.hypot(x - listed[0], y - listed[1]) > SAME_PLACE_M:
-                leave(f"point {shown(pid)}: x, y are {np.hypot(x - listed[0], y - listed[1]):.3f} m from its place "
-                      f"in the [points] table ({points.source}); a point keeps its place (within {SAME_PLACE_M:g} m)")
-                continue
-        if placed is not None and np.hypot(x - placed[0], y - placed[1]) > SAME_PLACE_M:
-            leave(f"point {shown(pid)}: x, y are {np.hypot(x - placed[0], y - placed[1]):.3f} m from its place on "
-                  f"row {placed[2]}; a point keeps its place (within {SAME_PLACE_M:g} m)")
-            continue
-        depth_cell = cell.get("depth_m", "")
-        if depth_cell != "":
-            depth, problem = _number(depth_cell, "depth_m")
-            if problem or depth < 0.0:
-                leave(problem or f"depth_m must be at least 0 (below the ground surface); got {shown(depth_cell)}")
-                continue
-        else:
-            depth = listed[2] if listed is not None else placed[3] if placed is not None else 0.0
-        if placed is not None and abs(depth - placed[3]) > SAME_PLACE_M:
-            leave(f"point {shown(pid)}: depth_m {depth:g} differs from its depth on row {placed[2]} ({placed[3]:g} m); "
-                  f"a point keeps its place (within {SAME_PLACE_M:g} m)")
-            continue
-
-        # Order, duplicates and the face.
-        if (pid, date) in seen:
-            leave(f"point {shown(pid)} already has a reading dated {date} (row {seen[(pid, date)]}); duplicate")
-            continue
-        last = last_of.get(pid)
-        if last is not None and date < last[0]:
-            leave(f"date {date} is before the reading of point {shown(pid)} on row {last[1]} ({last[0]}); a point's "
-                  "readings must be listed in date order")
-            continue
-        before = face_of.get((pid, d))
-        if before is not None and face < before[0] - CHAINAGE_TOLERANCE_M:
-            leave(f"face_chainage_m {face:g} is behind the face of the earlier reading of point {shown(pid)} on row "
-                  f"{before[1]} ({before[0]:g} m); the face of a drive only advances")
-            continue
-
-        place_of.setdefault(pid, (x, y, line, depth))
-        last_of[pid] = (date, line)
-        seen[(pid, date)] = line
-        face_of[(pid, d)] = (face, line)
-        for key, value in (("point_id", pid), ("x", x), ("y", y), ("depth", depth), ("date", date), ("s", s),
-                           ("face", face), ("drive", d), ("line", line)):
+        pid, x, y, depth, date, s, face, d, _ = reading
+        history.record(pid, x, y, depth, date, face, d, line)
+        for key, value in zip(kept, reading):
             kept[key].append(value)
+    return kept, left_out
 
+
+def _reading_of_row(cell: dict[str, str], line: int, has_drive: bool, names: tuple[str, ...],
+                    span: list[tuple[float, float]], table_place: dict, points,
+                    history: _PointHistory) -> tuple[tuple | None, str | None]:
+    """(the row's point, x, y, depth, date, settlement, face, drive, line; None), or (None, why it is left out)."""
+    pid = cell["point_id"]
+    if pid == "":
+        return None, "point_id is empty"
+    d, problem = _drive_of_row(cell, has_drive, names)
+    if problem:
+        return None, problem
+    s, face, problem = _numbers_of_row(cell, names[d], span[d])
+    if problem:
+        return None, problem
+    date, problem = _date_of_row(cell["date"])
+    if problem:
+        return None, problem
+    listed = table_place.get(pid)
+    placed = history.place_of.get(pid)
+    x, y, problem = _place_of_point(pid, cell, listed, placed, points)
+    if problem:
+        return None, problem
+    depth, problem = _depth_of_point(pid, cell.get("depth_m", ""), listed, placed)
+    if problem:
+        return None, problem
+    problem = _check_order_and_face(pid, date, face, d, history)
+    if problem:
+        return None, problem
+    return (pid, x, y, depth, date, s, face, d, line), None
+
+
+def _drive_of_row(cell: dict[str, str], has_drive: bool, names: tuple[str, ...]) -> tuple[int | None, str | None]:
+    """(index of the row's drive in the project, None), or (None, why it is left out)."""
+    if has_drive and cell["drive"] != "":
+        if cell["drive"] not in names:
+            return None, (f"drive {shown(cell['drive'])} is not a drive of the project; drives: "
+                          f"{', '.join(map(shown, names))}")
+        return names.index(cell["drive"]), None
+    if len(names) > 1:
+        return None, f"drive is empty; the project has {len(names)} drives, so each reading must name its drive"
+    return 0, None
+
+
+def _numbers_of_row(cell: dict[str, str], drive_name: str,
+                    span: tuple[float, float]) -> tuple[float | None, float | None, str | None]:
+    """(settlement [mm], face chainage [m] within the drive's span [m], None), or (None, None, why it is left out)."""
+    s, problem = _number(cell["settlement_mm"], "settlement_mm")
+    if problem:
+        return None, None, problem
+    face, problem = _number(cell["face_chainage_m"], "face_chainage_m")
+    if problem:
+        return None, None, problem
+    lo, hi = span
+    if not lo - CHAINAGE_TOLERANCE_M <= face <= hi + CHAINAGE_TOLERANCE_M:
+        return None, None, (f"face_chainage_m {face:g} is outside drive {shown(drive_name)} "
+                            f"(chainage {lo:.2f} to {hi:.2f} m)")
+    return s, min(max(face, lo), hi), None
+
+
+def _date_of_row(text: str) -> tuple[np.datetime64 | None, str | None]:
+    """(the reading's date and time in UTC, None), or (None, why it is left out)."""
+    try:
+        return parse_date(text), None
+    except ValueError:
+        return None, (f"date {shown(text)} is not an ISO 8601 date (YYYY-MM-DD, optionally with a time "
+                      "THH:MM[:SS] and an offset such as +01:00 or Z)")
+
+
+def _place_of_point(pid: str, cell: dict[str, str], listed: tuple | None, placed: tuple | None,
+                    points) -> tuple[float | None, float | None, str | None]:
+    """(x, y [m, project CRS] of the point, None), or (None, None, why the row is left out).
+
+    From the row's x, y cells, else the [points] table (`listed`), else the point's first kept row (`placed`).
+    """
+    xy_cells = (cell.get("x", ""), cell.get("y", ""))
+    if xy_cells == ("", "") and listed is None and placed is not None:
+        x, y = placed[0], placed[1]  # placed by an earlier row of the file
+    elif xy_cells == ("", ""):
+        if listed is None:
+            known = "the project has no [points] table" if points is None else \
+                f"it is not in the [points] table ({points.source})"
+            return None, None, f"point {shown(pid)}: the row gives no x, y and {known}"
+        x, y = listed[0], listed[1]
+    elif "" in xy_cells:
+        return None, None, (f"point {shown(pid)}: give both x and y, or neither (to take them from the [points] "
+                            "table)")
+    else:
+        x, problem = _number(xy_cells[0], "x")
+        y, problem_y = _number(xy_cells[1], "y")
+        if problem or problem_y:
+            return None, None, problem or problem_y
+        if listed is not None and np.hypot(x - listed[0], y - listed[1]) > SAME_PLACE_M:
+            return None, None, (f"point {shown(pid)}: x, y are {np.hypot(x - listed[0], y - listed[1]):.3f} m from "
+                                f"its place in the [points] table ({points.source}); a point keeps its place "
+                                f"(within {SAME_PLACE_M:g} m)")
+    if placed is not None and np.hypot(x - placed[0], y - placed[1]) > SAME_PLACE_M:
+        return None, None, (f"point {shown(pid)}: x, y are {np.hypot(x - placed[0], y - placed[1]):.3f} m from its "
+                            f"place on row {placed[2]}; a point keeps its place (within {SAME_PLACE_M:g} m)")
+    return x, y, None
+
+
+def _depth_of_point(pid: str, depth_cell: str, listed: tuple | None,
+                    placed: tuple | None) -> tuple[float | None, str | None]:
+    """(depth of the point below the surface [m], None), or (None, why the row is left out).
+
+    From the row's depth_m cell, else the [points] table (`listed`), else the point's first kept row (`placed`),
+    else 0 (a surface point).
+    """
+    if depth_cell != "":
+        depth, problem = _number(depth_cell, "depth_m")
+        if problem or depth < 0.0:
+            return None, problem or f"depth_m must be at least 0 (below the ground surface); got {shown(depth_cell)}"
+    else:
+        depth = listed[2] if listed is not None else placed[3] if placed is not None else 0.0
+    if placed is not None and abs(depth - placed[3]) > SAME_PLACE_M:
+        return None, (f"point {shown(pid)}: depth_m {depth:g} differs from its depth on row {placed[2]} "
+                      f"({placed[3]:g} m); a point keeps its place (within {SAME_PLACE_M:g} m)")
+    return depth, None
+
+
+def _check_order_and_face(pid: str, date: np.datetime64, face: float, d: int,
+                          history: _PointHistory) -> str | None:
+    """Why the reading is left out as a duplicate, out of date order or with its face [m] behind; None when kept."""
+    if (pid, date) in history.seen:
+        return f"point {shown(pid)} already has a reading dated {date} (row {history.seen[(pid, date)]}); duplicate"
+    last = history.last_of.get(pid)
+    if last is not None and date < last[0]:
+        return (f"date {date} is before the reading of point {shown(pid)} on row {last[1]} ({last[0]}); a point's "
+                "readings must be listed in date order")
+    before = history.face_of.get((pid, d))
+    if before is not None and face < before[0] - CHAINAGE_TOLERANCE_M:
+        return (f"face_chainage_m {face:g} is behind the face of the earlier reading of point {shown(pid)} on row "
+                f"{before[1]} ({before[0]:g} m); the face of a drive only advances")
+    return None
+
+
+def _build_readings(kept: dict[str, list], left_out: list[LeftOut], names: tuple[str, ...], path: Path) -> Readings:
+    """The Readings of the rows kept; an InputError when every row was left out."""
     if not kept["line"]:
         first = f"; first: {where(path, row=left_out[0].line)}: {left_out[0].reason}" if left_out else ""
         raise InputError(f"{path}: all {len(left_out)} readings were left out{first}")

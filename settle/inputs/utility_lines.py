@@ -178,6 +178,120 @@ def _closest(name: str) -> str:
     return f"; did you mean {shown(close[0])}?" if close else ""
 
 
+def _check_unique_ids(ids: tuple[str, ...], labels: list[str]) -> None:
+    """An InputError when two pipes share an id."""
+    seen: dict[str, int] = {}
+    for k, name in enumerate(ids):
+        if name in seen:
+            raise InputError(f"{labels[k]}: id {shown(name)} is already used by another pipe; ids must be unique")
+        seen[name] = k
+
+
+def _check_materials(materials: tuple, labels: list[str]) -> None:
+    """An InputError naming the pipe when a material is not one of `MATERIALS`."""
+    for k, m in enumerate(materials):
+        if m not in MATERIAL_LIMITS:
+            raise InputError(f"{labels[k]}: material {shown(m)} is not known; known materials: "
+                             f"{listing(MATERIALS)}{_closest(str(m))}")
+
+
+def _outer_diameters(outer_diameter_mm, n: int, labels: list[str]) -> np.ndarray:
+    """Outer diameters checked against `DIAMETER_RANGE_MM`. [mm]"""
+    od = np.asarray(outer_diameter_mm, dtype=float).reshape(n)
+    lo, hi = DIAMETER_RANGE_MM
+    bad = ~((od >= lo) & (od <= hi))
+    if bad.any():
+        k = int(np.argmax(bad))
+        hint = " (a diameter in metres?)" if 0 < od[k] < lo else ""
+        raise InputError(f"{labels[k]}: outer_diameter_mm must be a number from {lo:g} to {hi:g} mm; got "
+                         f"{od[k]:g}{hint}")
+    return od
+
+
+def _segment_lengths(segment_length_m, n: int, labels: list[str]) -> np.ndarray:
+    """Pipe lengths between joints, more than 0 or NaN for a continuous pipe. [m]"""
+    seg = np.full(n, np.nan) if segment_length_m is None else np.asarray(segment_length_m, dtype=float).reshape(n)
+    bad = np.isfinite(seg) & ~(seg > 0) | np.isinf(seg)
+    if bad.any():
+        k = int(np.argmax(bad))
+        raise InputError(f"{labels[k]}: segment_length_m must be more than 0 m (or empty for a continuous pipe); "
+                         f"got {seg[k]:g}")
+    return seg
+
+
+def _axis_depths(lines_xy, depths_m, od: np.ndarray, labels: list[str]) -> tuple[list, list]:
+    """Plan vertices [m] and the depth of the axis at each vertex [m], checked to be given, positive and at least the
+    pipe's radius (od [mm])."""
+    lines, depths = [], []
+    for k in range(len(od)):
+        xy = np.asarray(lines_xy[k], dtype=float)
+        d = np.broadcast_to(np.asarray(depths_m[k], dtype=float), (len(xy),)).copy()
+        if not np.all(np.isfinite(d)):
+            raise InputError(f"{labels[k]}: depth_m is missing; give the depth of the pipe axis below the ground "
+                             "surface [m]")
+        if not np.all(d > 0):
+            raise InputError(f"{labels[k]}: depth_m must be more than 0 m (depth of the pipe axis below the "
+                             f"surface); got {d[np.argmin(d > 0)]:g}")
+        if np.any(d < od[k] / 2000.0):
+            raise InputError(f"{labels[k]}: the pipe axis lies {d.min():g} m below the surface, less than its radius "
+                             f"({od[k] / 2000.0:g} m): the pipe would stand out of the ground (depth_m is to the axis)")
+        lines.append(xy)
+        depths.append(d)
+    return lines, depths
+
+
+def _allowable_values(materials: tuple, overrides: dict | None, n: int, labels: list[str]) -> tuple[dict, dict]:
+    """Per `ALLOWABLE_KEYS`, the pipes' allowable values (their own where given, else the material default) and
+    which pipes gave their own."""
+    limits = {key: np.array([getattr(MATERIAL_LIMITS[m], key) for m in materials], dtype=float)
+              for key in ALLOWABLE_KEYS}
+    given = {key: np.zeros(n, dtype=bool) for key in ALLOWABLE_KEYS}
+    for key, values in (overrides or {}).items():
+        if key not in ALLOWABLE_KEYS:
+            raise ValueError(f"unknown allowable {key!r}; known: {ALLOWABLE_KEYS}")
+        values = np.asarray(values, dtype=float).reshape(n)
+        bad = np.isinf(values) | (np.isfinite(values) & ~(values > 0))
+        if bad.any():
+            k = int(np.argmax(bad))
+            raise InputError(f"{labels[k]}: {key} must be more than 0 (or empty for the material default); got "
+                             f"{values[k]:g}")
+        given[key] = np.isfinite(values)
+        limits[key] = np.where(given[key], values, limits[key])
+    return limits, given
+
+
+def _reduction_factors(bending_reduction_factor, seg: np.ndarray, n: int, labels: list[str]) -> np.ndarray:
+    """Bending reduction factors in (0, 1], NaN where not given, on continuous pipes only. [-]"""
+    factor = (np.full(n, np.nan) if bending_reduction_factor is None
+              else np.asarray(bending_reduction_factor, dtype=float).reshape(n))
+    bad = np.isfinite(factor) & ~((factor > 0) & (factor <= 1)) | np.isinf(factor)
+    if bad.any():
+        k = int(np.argmax(bad))
+        raise InputError(f"{labels[k]}: bending_reduction_factor must be more than 0 and at most 1; got {factor[k]:g}")
+    bad = np.isfinite(factor) & np.isfinite(seg)
+    if bad.any():
+        k = int(np.argmax(bad))
+        raise InputError(f"{labels[k]}: bending_reduction_factor applies to continuous pipes only, and this pipe has "
+                         f"joints (segment_length_m = {seg[k]:g})")
+    return factor
+
+
+def _limits_sources(materials: tuple, given: dict) -> tuple[str, ...]:
+    """Per pipe, where its allowable values come from: its attributes, its material's defaults (with their status),
+    or both."""
+    sources = []
+    for k, m in enumerate(materials):
+        own = [key for key in ALLOWABLE_KEYS if given[key][k]]
+        default = f"{m} defaults ({MATERIAL_LIMITS[m].status})"
+        if not own:
+            sources.append(default)
+        elif len(own) == len(ALLOWABLE_KEYS):
+            sources.append("pipe attributes")
+        else:
+            sources.append(f"pipe attributes for {', '.join(own)}; {default} for the rest")
+    return tuple(sources)
+
+
 def make_utilities(ids, materials, lines_xy, depths_m, outer_diameter_mm, segment_length_m=None,
                    overrides: dict[str, np.ndarray] | None = None, bending_reduction_factor=None,
                    labels=None, source: str = "", warnings=()) -> Utilities:
@@ -204,85 +318,20 @@ def make_utilities(ids, materials, lines_xy, depths_m, outer_diameter_mm, segmen
     n = len(ids)
     ids = tuple(str(i) for i in ids)
     labels = list(labels) if labels is not None else [f"{source} pipe {shown(i)}".strip() for i in ids]
-    seen: dict[str, int] = {}
-    for k, name in enumerate(ids):
-        if name in seen:
-            raise InputError(f"{labels[k]}: id {shown(name)} is already used by another pipe; ids must be unique")
-        seen[name] = k
+    _check_unique_ids(ids, labels)
     materials = tuple(materials)
-    for k, m in enumerate(materials):
-        if m not in MATERIAL_LIMITS:
-            raise InputError(f"{labels[k]}: material {shown(m)} is not known; known materials: "
-                             f"{listing(MATERIALS)}{_closest(str(m))}")
-    od = np.asarray(outer_diameter_mm, dtype=float).reshape(n)
-    lo, hi = DIAMETER_RANGE_MM
-    bad = ~((od >= lo) & (od <= hi))
-    if bad.any():
-        k = int(np.argmax(bad))
-        hint = " (a diameter in metres?)" if 0 < od[k] < lo else ""
-        raise InputError(f"{labels[k]}: outer_diameter_mm must be a number from {lo:g} to {hi:g} mm; got "
-                         f"{od[k]:g}{hint}")
-    seg = np.full(n, np.nan) if segment_length_m is None else np.asarray(segment_length_m, dtype=float).reshape(n)
-    bad = np.isfinite(seg) & ~(seg > 0) | np.isinf(seg)
-    if bad.any():
-        k = int(np.argmax(bad))
-        raise InputError(f"{labels[k]}: segment_length_m must be more than 0 m (or empty for a continuous pipe); "
-                         f"got {seg[k]:g}")
-    lines, depths = [], []
-    for k in range(n):
-        xy = np.asarray(lines_xy[k], dtype=float)
-        d = np.broadcast_to(np.asarray(depths_m[k], dtype=float), (len(xy),)).copy()
-        if not np.all(np.isfinite(d)):
-            raise InputError(f"{labels[k]}: depth_m is missing; give the depth of the pipe axis below the ground "
-                             "surface [m]")
-        if not np.all(d > 0):
-            raise InputError(f"{labels[k]}: depth_m must be more than 0 m (depth of the pipe axis below the "
-                             f"surface); got {d[np.argmin(d > 0)]:g}")
-        if np.any(d < od[k] / 2000.0):
-            raise InputError(f"{labels[k]}: the pipe axis lies {d.min():g} m below the surface, less than its radius "
-                             f"({od[k] / 2000.0:g} m): the pipe would stand out of the ground (depth_m is to the axis)")
-        lines.append(xy)
-        depths.append(d)
-    limits = {key: np.array([getattr(MATERIAL_LIMITS[m], key) for m in materials], dtype=float)
-              for key in ALLOWABLE_KEYS}
-    given = {key: np.zeros(n, dtype=bool) for key in ALLOWABLE_KEYS}
-    for key, values in (overrides or {}).items():
-        if key not in ALLOWABLE_KEYS:
-            raise ValueError(f"unknown allowable {key!r}; known: {ALLOWABLE_KEYS}")
-        values = np.asarray(values, dtype=float).reshape(n)
-        bad = np.isinf(values) | (np.isfinite(values) & ~(values > 0))
-        if bad.any():
-            k = int(np.argmax(bad))
-            raise InputError(f"{labels[k]}: {key} must be more than 0 (or empty for the material default); got "
-                             f"{values[k]:g}")
-        given[key] = np.isfinite(values)
-        limits[key] = np.where(given[key], values, limits[key])
-    factor = (np.full(n, np.nan) if bending_reduction_factor is None
-              else np.asarray(bending_reduction_factor, dtype=float).reshape(n))
-    bad = np.isfinite(factor) & ~((factor > 0) & (factor <= 1)) | np.isinf(factor)
-    if bad.any():
-        k = int(np.argmax(bad))
-        raise InputError(f"{labels[k]}: bending_reduction_factor must be more than 0 and at most 1; got {factor[k]:g}")
-    bad = np.isfinite(factor) & np.isfinite(seg)
-    if bad.any():
-        k = int(np.argmax(bad))
-        raise InputError(f"{labels[k]}: bending_reduction_factor applies to continuous pipes only, and this pipe has "
-                         f"joints (segment_length_m = {seg[k]:g})")
-    sources = []
-    for k, m in enumerate(materials):
-        own = [key for key in ALLOWABLE_KEYS if given[key][k]]
-        default = f"{m} defaults ({MATERIAL_LIMITS[m].status})"
-        if not own:
-            sources.append(default)
-        elif len(own) == len(ALLOWABLE_KEYS):
-            sources.append("pipe attributes")
-        else:
-            sources.append(f"pipe attributes for {', '.join(own)}; {default} for the rest")
+    _check_materials(materials, labels)
+    od = _outer_diameters(outer_diameter_mm, n, labels)
+    seg = _segment_lengths(segment_length_m, n, labels)
+    lines, depths = _axis_depths(lines_xy, depths_m, od, labels)
+    limits, given = _allowable_values(materials, overrides, n, labels)
+    factor = _reduction_factors(bending_reduction_factor, seg, n, labels)
+    sources = _limits_sources(materials, given)
     return Utilities(
         ids=ids, materials=materials, lines_xy=tuple(lines), depths_m=tuple(depths), outer_diameter_mm=od,
         segment_length_m=seg, checks_compression=np.array([MATERIAL_LIMITS[m].checks_compression for m in materials],
                                                           dtype=bool),
-        bending_reduction_factor=np.where(np.isfinite(factor), factor, 1.0), limits_source=tuple(sources),
+        bending_reduction_factor=np.where(np.isfinite(factor), factor, 1.0), limits_source=sources,
         source=source, warnings=tuple(warnings), **limits,
     )
 
@@ -347,6 +396,96 @@ def _plan_vertices(xyz: np.ndarray, vertical: str, label: str) -> tuple[np.ndarr
     return xyz[keep], np.asarray(keep) + 1
 
 
+def _check_file(path: Path, options: UtilityReadOptions) -> None:
+    """An InputError when the vertical option is unknown or the file is a shapefile, of another kind or missing."""
+    key = options.key
+    if options.vertical not in VERTICALS:
+        raise InputError(f"{key} vertical must be one of {listing(VERTICALS)}; got {shown(options.vertical)}")
+    if path.suffix.lower() == ".shp":
+        raise InputError(f"{key} file: {path} is a shapefile, which cuts attribute names such as outer_diameter_mm "
+                         f"to 10 characters; save the layer as GeoPackage (.gpkg) or GeoJSON")
+    if path.suffix.lower() not in SUFFIXES:
+        raise InputError(f"{key} file: {path} is not a GIS line file; give one of {', '.join(SUFFIXES)}")
+    if not path.exists():
+        raise InputError(f"{key} file: {path} does not exist")
+
+
+def _read_layer(path: Path, options: UtilityReadOptions):
+    """The layer as a frame and its name for messages, checked to have every required attribute."""
+    key = options.key
+    frame, source = read_gis_layer(path, options.layer, f"{key} layer", fid_as_index=True)
+    columns = [c for c in frame.columns if c != frame.geometry.name]
+    required = REQUIRED_ATTRIBUTES + (("depth_m",) if options.vertical == "depth" else ())
+    for name in required:
+        if name not in columns:
+            hint = ""
+            if name == "depth_m" and frame.geometry.has_z.any():
+                hint = f' (the lines have Z: if Z is the level of the pipe axis, set {key} vertical = "axis")'
+            raise InputError(f"{source}: missing attribute {shown(name)}; attributes found: "
+                             f"{listing(columns) or 'none'}{hint}")
+    if options.vertical == "axis" and options.surface_level is None:
+        raise ValueError("read_utilities: vertical = 'axis' needs options.surface_level")
+    return frame, source
+
+
+def _pipe_attributes(cells: dict, fid, source: str, numbers: dict[str, list]) -> tuple[str, str, str]:
+    """The id, message label and material of one feature; its numeric attributes appended to `numbers` (NaN when
+    empty or absent)."""
+    pid = _text_cell(cells["id"])
+    if pid is None:
+        raise InputError(f"{source} feature {fid}: id is empty; every pipe needs an id")
+    label = f"{source} pipe {shown(pid)}"
+    material = _text_cell(cells["material"])
+    if material is None:
+        raise InputError(f"{label}: material is empty; known materials: {listing(MATERIALS)}")
+    for name in numbers:
+        value = _number_cell(cells.get(name), label, name) if name in cells else math.nan
+        if name == "outer_diameter_mm" and math.isnan(value):
+            raise InputError(f"{label}: outer_diameter_mm is empty")
+        numbers[name].append(value)
+    return pid, label, material
+
+
+def _line_vertices(geometry_cell, label: str, transformer, options: UtilityReadOptions):
+    """The (n, 3) vertices of one pipe's line in the project CRS [m], repeated ones dropped, and their numbers in the
+    file (from 1)."""
+    geometry = single_line(geometry_cell, label,
+                           "give each continuous pipe as one line (merge the parts, or split them into pipes "
+                           "with their own ids)", "a utility must be a line (LineString)")
+    if options.vertical == "axis" and not geometry.has_z:
+        raise InputError(f'{label}: the line has no Z, but {options.key} vertical = "axis" reads the pipe axis level '
+                         "from Z; give 3-D lines or a depth_m attribute")
+    xyz = shapely.get_coordinates(geometry, include_z=True)
+    if transformer is not None:
+        x, y = transformer.transform(xyz[:, 0], xyz[:, 1])
+        xyz = np.column_stack([x, y, xyz[:, 2]])
+    needed = xyz if options.vertical == "axis" else xyz[:, :2]
+    bad = ~np.isfinite(needed).all(axis=1)
+    if bad.any():
+        raise InputError(f"{label} vertex {int(np.argmax(bad)) + 1}: a coordinate is not a number"
+                         + (" (or cannot be transformed to the project CRS)" if transformer is not None else ""))
+    return _plan_vertices(xyz, options.vertical, label)
+
+
+def _vertex_depths(xyz: np.ndarray, number: np.ndarray, depth_cell, label: str,
+                   options: UtilityReadOptions) -> np.ndarray:
+    """Depth of the pipe axis below the ground surface at each vertex [m]: the surface level less Z when vertical =
+    "axis", else the depth_m attribute."""
+    if options.vertical == "axis":
+        surface = np.asarray(options.surface_level(xyz[:, 0], xyz[:, 1]), dtype=float)
+        outside = ~np.isfinite(surface)
+        if outside.any():
+            raise InputError(f"{label} vertex {number[np.argmax(outside)]}: outside the ground surface survey, "
+                             "so its depth is not known")
+        depth = surface - xyz[:, 2]
+        if not np.all(depth > 0):
+            j = int(np.argmin(depth > 0))
+            raise InputError(f"{label} vertex {number[j]}: the pipe axis level {xyz[j, 2]:g} m is not below the "
+                             f"ground surface ({surface[j]:g} m)")
+        return depth
+    return np.full(len(xyz), _number_cell(depth_cell, label, "depth_m"))
+
+
 def read_utilities(path, project_crs: str, options: UtilityReadOptions = UtilityReadOptions()) -> Utilities:
     """Read buried utility lines (see the module docstring for the attributes) into `Utilities`.
 
@@ -366,29 +505,8 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
                 attribute: every mistake in the file is one.
     """
     path = Path(path)
-    key = options.key
-    if options.vertical not in VERTICALS:
-        raise InputError(f"{key} vertical must be one of {listing(VERTICALS)}; got {shown(options.vertical)}")
-    if path.suffix.lower() == ".shp":
-        raise InputError(f"{key} file: {path} is a shapefile, which cuts attribute names such as outer_diameter_mm "
-                         f"to 10 characters; save the layer as GeoPackage (.gpkg) or GeoJSON")
-    if path.suffix.lower() not in SUFFIXES:
-        raise InputError(f"{key} file: {path} is not a GIS line file; give one of {', '.join(SUFFIXES)}")
-    if not path.exists():
-        raise InputError(f"{key} file: {path} does not exist")
-    frame, source = read_gis_layer(path, options.layer, f"{key} layer", fid_as_index=True)
-    columns = [c for c in frame.columns if c != frame.geometry.name]
-    required = REQUIRED_ATTRIBUTES + (("depth_m",) if options.vertical == "depth" else ())
-    for name in required:
-        if name not in columns:
-            hint = ""
-            if name == "depth_m" and frame.geometry.has_z.any():
-                hint = f' (the lines have Z: if Z is the level of the pipe axis, set {key} vertical = "axis")'
-            raise InputError(f"{source}: missing attribute {shown(name)}; attributes found: "
-                             f"{listing(columns) or 'none'}{hint}")
-    if options.vertical == "axis" and options.surface_level is None:
-        raise ValueError("read_utilities: vertical = 'axis' needs options.surface_level")
-
+    _check_file(path, options)
+    frame, source = _read_layer(path, options)
     transformer, notes = project_transformer(frame.crs, project_crs, source)
 
     ids, materials, lines, depths, labels = [], [], [], [], []
@@ -396,47 +514,9 @@ def read_utilities(path, project_crs: str, options: UtilityReadOptions = Utility
                + ALLOWABLE_KEYS}
     for fid, row in zip(frame.index, frame.itertuples(index=False)):
         cells = dict(zip(frame.columns, row))
-        pid = _text_cell(cells["id"])
-        if pid is None:
-            raise InputError(f"{source} feature {fid}: id is empty; every pipe needs an id")
-        label = f"{source} pipe {shown(pid)}"
-        material = _text_cell(cells["material"])
-        if material is None:
-            raise InputError(f"{label}: material is empty; known materials: {listing(MATERIALS)}")
-        for name in numbers:
-            value = _number_cell(cells.get(name), label, name) if name in cells else math.nan
-            if name == "outer_diameter_mm" and math.isnan(value):
-                raise InputError(f"{label}: outer_diameter_mm is empty")
-            numbers[name].append(value)
-        geometry = single_line(cells[frame.geometry.name], label,
-                               "give each continuous pipe as one line (merge the parts, or split them into pipes "
-                               "with their own ids)", "a utility must be a line (LineString)")
-        if options.vertical == "axis" and not geometry.has_z:
-            raise InputError(f'{label}: the line has no Z, but {key} vertical = "axis" reads the pipe axis level '
-                             "from Z; give 3-D lines or a depth_m attribute")
-        xyz = shapely.get_coordinates(geometry, include_z=True)
-        if transformer is not None:
-            x, y = transformer.transform(xyz[:, 0], xyz[:, 1])
-            xyz = np.column_stack([x, y, xyz[:, 2]])
-        needed = xyz if options.vertical == "axis" else xyz[:, :2]
-        bad = ~np.isfinite(needed).all(axis=1)
-        if bad.any():
-            raise InputError(f"{label} vertex {int(np.argmax(bad)) + 1}: a coordinate is not a number"
-                             + (" (or cannot be transformed to the project CRS)" if transformer is not None else ""))
-        xyz, number = _plan_vertices(xyz, options.vertical, label)
-        if options.vertical == "axis":
-            surface = np.asarray(options.surface_level(xyz[:, 0], xyz[:, 1]), dtype=float)
-            outside = ~np.isfinite(surface)
-            if outside.any():
-                raise InputError(f"{label} vertex {number[np.argmax(outside)]}: outside the ground surface survey, "
-                                 "so its depth is not known")
-            depth = surface - xyz[:, 2]
-            if not np.all(depth > 0):
-                j = int(np.argmin(depth > 0))
-                raise InputError(f"{label} vertex {number[j]}: the pipe axis level {xyz[j, 2]:g} m is not below the "
-                                 f"ground surface ({surface[j]:g} m)")
-        else:
-            depth = np.full(len(xyz), _number_cell(cells["depth_m"], label, "depth_m"))
+        pid, label, material = _pipe_attributes(cells, fid, source, numbers)
+        xyz, number = _line_vertices(cells[frame.geometry.name], label, transformer, options)
+        depth = _vertex_depths(xyz, number, cells.get("depth_m"), label, options)
         ids.append(pid)
         materials.append(material)
         lines.append(np.ascontiguousarray(xyz[:, :2]))

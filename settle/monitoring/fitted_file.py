@@ -67,34 +67,21 @@ def _blocks(lines: list[str]) -> list[dict]:
     return blocks
 
 
-def fitted_project_toml(project_path, fits: dict, out_dir=None) -> str:
-    """The project file's text with the fitted volume loss and K written in; every other line and comment kept.
-
-    Values go where `back_analysis` fitted them: a whole-drive fit (key (name, None)) sets the drive's
-    volume_loss_pct and trough_width_k and those of all its reaches; a per-reach fit sets the drive's values for key
-    (name, 0) and the n-th reach in chainage order for key (name, n). A trough_width_k line is added where the
-    drive or reach had none. Each changed line ends with a comment giving the standard error and the value it
-    replaced. Paths (keys `PATH_KEYS`, and any other text naming a file beside the project file) are rewritten
-    relative to `out_dir` when given, else as absolute paths, so the text can be saved in the output folder and read
-    with `settle.project.load_project` unchanged.
-
-    Raises
-    ------
-    InputError  When the file's layout hides a value from this line-by-line rewrite (e.g. an inline table); the
-                message says which, and the values to write by hand.
-    """
-    project_path = Path(project_path)
-    folder = project_path.parent
+def _read_project(project_path: Path) -> tuple[str, dict]:
+    """The project file's text and its parsed TOML; InputError when it cannot be read."""
     try:
         text = project_path.read_text(encoding="utf-8")
         doc = tomllib.loads(text)
     except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         raise InputError(f"{project_path}: cannot be read as a project file: {exc}") from None
-    lines = text.splitlines()
+    return text, doc
+
+
+def _expected_values(project_path: Path, doc: dict, fits: dict) -> dict:
+    """Where each fit goes: (drive index, reach index in the file or None) -> (fit, value per key)."""
     drives = doc.get("drives", [])
     names = [item.get("name") for item in drives]
-    expected = {}  # (drive index, reach index in the file or None) -> value per key
-
+    expected = {}
     for (name, key), fit in fits.items():
         if name not in names:
             raise InputError(f"{project_path}: no [[drives]] item is named {json.dumps(name)}; the fits belong to "
@@ -106,10 +93,14 @@ def fitted_project_toml(project_path, fits: dict, out_dir=None) -> str:
             [(i, None)] if key == 0 else [(i, order[key - 1])]
         for target in targets:
             expected[target] = (fit, {"volume_loss_pct": fit.volume_loss_pct, "trough_width_k": fit.trough_width_k})
+    return expected
 
-    blocks = _blocks(lines)
+
+def _rewrite_values(lines: list[str], expected: dict) -> dict:
+    """Write the fitted values over their lines in place; return the lines to add (line number after which ->
+    text) for a trough_width_k the drive or reach did not give."""
     inserts = {}
-    for block in blocks:
+    for block in _blocks(lines):
         if block["kind"] == "other":
             continue
         target = (block["drive"], None if block["kind"] == "drive" else block["reach"])
@@ -130,9 +121,11 @@ def fitted_project_toml(project_path, fits: dict, out_dir=None) -> str:
                 n = block["keys"]["volume_loss_pct"]
                 indent = re.match(r"\s*", lines[n]).group(0)
                 inserts[n] = f"{indent}{key} = {_toml_number(value)}  # {note}; was not given (K of the layers)"
+    return inserts
 
-    # Paths, line by line.
-    out = Path(out_dir) if out_dir is not None else None
+
+def _rewrite_paths(lines: list[str], folder: Path, out: Path | None) -> None:
+    """Re-point, in place, every relative path of the file: relative to `out` when given, else absolute."""
     for n, line in enumerate(lines):
         match = _TEXT.match(line)
         if not match:
@@ -144,11 +137,41 @@ def fitted_project_toml(project_path, fits: dict, out_dir=None) -> str:
         new = os.path.relpath(target, out.resolve()) if out is not None else str(target)
         lines[n] = f"{match.group('head')}{_toml_text(Path(new).as_posix())}{match.group('rest')}"
 
+
+def _finished_text(project_path: Path, lines: list[str], inserts: dict) -> str:
+    """The rewritten lines with the added lines put in and the header saying where the file came from."""
     for n in sorted(inserts, reverse=True):
         lines.insert(n + 1, inserts[n])
     header = ["# Back-analysed: volume loss and trough width factor fitted to monitoring readings by settle.",
               f"# Made from {project_path.resolve().as_posix()}; paths point to its input files."]
-    new_text = "\n".join(header + lines) + "\n"
+    return "\n".join(header + lines) + "\n"
+
+
+def fitted_project_toml(project_path, fits: dict, out_dir=None) -> str:
+    """The project file's text with the fitted volume loss and K written in; every other line and comment kept.
+
+    Values go where `back_analysis` fitted them: a whole-drive fit (key (name, None)) sets the drive's
+    volume_loss_pct and trough_width_k and those of all its reaches; a per-reach fit sets the drive's values for key
+    (name, 0) and the n-th reach in chainage order for key (name, n). A trough_width_k line is added where the
+    drive or reach had none. Each changed line ends with a comment giving the standard error and the value it
+    replaced. Paths (keys `PATH_KEYS`, and any other text naming a file beside the project file) are rewritten
+    relative to `out_dir` when given, else as absolute paths, so the text can be saved in the output folder and read
+    with `settle.project.load_project` unchanged.
+
+    Raises
+    ------
+    InputError  When the file's layout hides a value from this line-by-line rewrite (e.g. an inline table); the
+                message says which, and the values to write by hand.
+    """
+    project_path = Path(project_path)
+    folder = project_path.parent
+    text, doc = _read_project(project_path)
+    lines = text.splitlines()
+    expected = _expected_values(project_path, doc, fits)
+    inserts = _rewrite_values(lines, expected)
+    out = Path(out_dir) if out_dir is not None else None
+    _rewrite_paths(lines, folder, out)
+    new_text = _finished_text(project_path, lines, inserts)
     _check_fitted(project_path, doc, new_text, expected, folder, out)
     return new_text
 

@@ -223,6 +223,20 @@ def _part_of(drive: Drive, keys: list, chainage_m: np.ndarray) -> np.ndarray:
     return part
 
 
+def _nominal_volume_losses(drive: Drive, n_parts: int) -> list:
+    """A volume loss per part, each distinct and none the drive's or a reach's own, so that the element cuts fall
+    at every part boundary. [%]"""
+    fixed = {drive.volume_loss_pct} | {r.volume_loss_pct for r in drive.reaches}
+    nominal = []
+    candidate = 1.0
+    for _ in range(n_parts):
+        while candidate in fixed or candidate in nominal:
+            candidate += 0.125
+        nominal.append(candidate)
+        candidate += 0.125
+    return nominal
+
+
 class _DriveModel:
     """The forward model of one drive at its readings, split into the parts fitted, with the element cuts of a
     reference K kept while K varies (the cuts are rebuilt by `build`)."""
@@ -238,15 +252,7 @@ class _DriveModel:
         label = project.path.name if project.path else "project"
         self.geometry = [build_drive(replace(self.drive, face_chainage_m=f), ground, label)[0] for f in self.faces]
         self.fitted = np.ones(len(keys), dtype=bool)
-        # Distinct volume losses per part force element cuts at every part boundary.
-        fixed = {self.drive.volume_loss_pct} | {r.volume_loss_pct for r in self.drive.reaches}
-        self.nominal = []
-        candidate = 1.0
-        for _ in keys:
-            while candidate in fixed or candidate in self.nominal:
-                candidate += 0.125
-            self.nominal.append(candidate)
-            candidate += 0.125
+        self.nominal = _nominal_volume_losses(self.drive, len(keys))
         self.k_ref = None
         self.pieces = []
         self.cuts = None
@@ -382,6 +388,150 @@ def _describe(drive: Drive, key) -> str:
     return f"drive {json.dumps(drive.name)} reach {key} ({r.from_chainage_m:g} to {r.to_chainage_m:g} m)"
 
 
+def _mark_parts_seen(model: _DriveModel, k0: np.ndarray, warnings: list) -> bool:
+    """Mark the parts of the drive that enough readings see as fitted, warn of the others; False when none is."""
+    with np.errstate(invalid="ignore"):
+        seen = (model.unit(k0) >= SEEN_SHARE * model.full_smax_mm()[None, :]).sum(axis=0)
+    model.fitted = seen >= MIN_READINGS_SEEN
+    for p in np.flatnonzero(~model.fitted):
+        warnings.append(f"{_describe(model.drive, model.keys[p])}: not fitted, {int(seen[p])} reading(s) see it (at "
+                        f"least {MIN_READINGS_SEEN} must get {SEEN_SHARE:.0%} of its Smax); the project's values kept")
+    return bool(model.fitted.any())
+
+
+def _readings_used(model: _DriveModel, readings: Readings, idx: np.ndarray, k0: np.ndarray,
+                   min_face_past_m: float | None, warnings: list) -> np.ndarray:
+    """Which of the drive's readings the fit uses: not below a crown, and (with `min_face_past_m` [m]) taken with
+    the face far enough past the point; warns of those left out."""
+    drive = model.drive
+    widest = model.unit(np.full(len(k0), K_BOUNDS[1]))
+    deep = np.isnan(widest).any(axis=1) | np.isnan(model.fixed()) | np.isnan(model.unit(k0)).any(axis=1)
+    active = ~deep
+    if min_face_past_m is not None:
+        past = readings.face_chainage_m[idx] - point_chainage_m(model.geometry[0], model.x, model.y)
+        near = ~deep & (past < min_face_past_m)
+        active &= ~near
+        if near.any():
+            warnings.append(f"drive {json.dumps(drive.name)}: {int(near.sum())} reading(s) taken with the face "
+                            f"less than {min_face_past_m:g} m past the point left out of the fit "
+                            "(min_face_past_m)")
+    if deep.any():
+        ids = sorted(set(readings.point_id[idx][deep]))
+        warnings.append(f"drive {json.dumps(drive.name)}: {int(deep.sum())} reading(s) at points at or below the "
+                        f"crown left out (no subsurface trough there): {', '.join(ids[:10])}"
+                        + (" ..." if len(ids) > 10 else ""))
+    return active
+
+
+def _solve_in_rounds(model: _DriveModel, observed: np.ndarray, active: np.ndarray, k0: np.ndarray,
+                     outlier_limit: float):
+    """Robust fit, outliers and final fit, with the element cuts rebuilt at the solution until they stay: as
+    `_solve`, (parameters, outlier mask, robust sigma [mm], Jacobian, bound mask)."""
+    m = len(k0)
+    p = _start(model, observed, active, k0)
+    for _ in range(MAX_ROUNDS):
+        p, out, sigma, jac, at_bound = _solve(model, observed, active, p, outlier_limit)
+        if not model.build(p[m:]):
+            break
+    return p, out, sigma, jac, at_bound
+
+
+def _settlement_at_fit(project: Project, ground: GroundModel, readings: Readings, idx: np.ndarray, drive: Drive,
+                       values: dict) -> np.ndarray:
+    """Settlement at the drive's readings of the forward model built afresh with the fitted values. [mm]"""
+    at_fit = replace(project, drives=tuple(drive_with_values(dr, values) if dr is drive else dr
+                                           for dr in project.drives))
+    return predicted_settlement_mm(at_fit, readings.subset(idx), ground)
+
+
+def _standard_errors(drive: Drive, residual: np.ndarray, inlier: np.ndarray, jac: np.ndarray, n_used: int,
+                     n_par: int, warnings: list) -> np.ndarray:
+    """Standard errors of the fitted values from the Jacobian and the residuals [mm] of the readings used; NaN,
+    with a warning, where the readings cannot give them."""
+    se = np.full(n_par, math.nan)
+    if n_used > n_par:
+        s2 = float(np.sum(residual[inlier] ** 2)) / (n_used - n_par)
+        jtj = jac.T @ jac
+        if np.linalg.cond(jtj) < 1e12:
+            se = np.sqrt(np.diag(np.linalg.inv(jtj)) * s2)
+        else:
+            warnings.append(f"drive {json.dumps(drive.name)}: the readings cannot tell volume loss and K apart "
+                            "(their Jacobian is singular); no standard errors")
+    else:
+        warnings.append(f"drive {json.dumps(drive.name)}: {n_used} reading(s) for {n_par} values; no standard "
+                        "errors")
+    return se
+
+
+def _outlier_records(readings: Readings, idx: np.ndarray, observed: np.ndarray, exact: np.ndarray,
+                     residual: np.ndarray, sigma: float, out: np.ndarray) -> list:
+    """One dict per outlier of the drive: point, date, line, reading, fitted value and residual [mm]."""
+    return [{
+        "point_id": str(readings.point_id[idx][r]), "date": str(readings.date[idx][r]),
+        "line": int(readings.line[idx][r]), "reading_mm": float(observed[r]), "fitted_mm": float(exact[r]),
+        "residual_mm": float(residual[r]), "standardised_residual": float(residual[r] / sigma),
+    } for r in np.flatnonzero(out)]
+
+
+def _part_fits(model: _DriveModel, p: np.ndarray, se: np.ndarray, n_used: int, rms: float, outliers: list,
+               warnings: list) -> dict:
+    """The FitResult of each part fitted, keyed (drive name, part key); warns of a value at a bound of its range."""
+    drive, keys, m = model.drive, model.keys, len(model.parts)
+    fits = {}
+    for j, q in enumerate(model.parts):
+        for value, (lo, hi), name in ((p[j], VOLUME_LOSS_BOUNDS_PCT, "volume_loss_pct"),
+                                      (p[m + j], K_BOUNDS, "trough_width_k")):
+            if value <= lo * (1 + 1e-9) or value >= hi * (1 - 1e-9):
+                warnings.append(f"{_describe(drive, keys[q])}: fitted {name} = {value:g} is at the bound of "
+                                f"its range ({lo:g} to {hi:g}); the readings do not hold it")
+        fits[(drive.name, keys[q])] = FitResult(
+            volume_loss_pct=float(p[j]), trough_width_k=float(p[m + j]), volume_loss_pct_se=float(se[j]),
+            trough_width_k_se=float(se[m + j]), readings_used=n_used, rms_mm=rms, outliers=outliers)
+    return fits
+
+
+def _fit_drive(project: Project, ground: GroundModel, readings: Readings, d: int, idx: np.ndarray, per_reach: bool,
+               outlier_limit: float, min_face_past_m: float | None, warnings: list):
+    """Fit drive d to its readings `idx`: (fits, inlier mask, outlier mask, fitted settlement [mm]) of its
+    readings, or None when it cannot be fitted."""
+    drive = project.drives[d]
+    keys = [None] if not (per_reach and drive.reaches) else list(range(len(drive.reaches) + 1))
+    model = _DriveModel(project, ground, d, readings, idx, keys)
+    observed = readings.settlement_mm[idx]
+    k0 = model.project_k()
+    model.build(k0)
+    if not _mark_parts_seen(model, k0, warnings):
+        return None
+    k0 = k0[model.fitted]
+    m = len(k0)
+    model.build(k0)
+    active = _readings_used(model, readings, idx, k0, min_face_past_m, warnings)
+    if active.sum() <= 2 * m:
+        warnings.append(f"drive {json.dumps(drive.name)}: not fitted, {int(active.sum())} usable reading(s) for "
+                        f"{2 * m} values")
+        return None
+    p, out, sigma, jac, at_bound = _solve_in_rounds(model, observed, active, k0, outlier_limit)
+    inlier = active & ~out
+
+    values = {keys[q]: (float(p[j]), float(p[m + j])) for j, q in enumerate(model.parts)}
+    exact = _settlement_at_fit(project, ground, readings, idx, drive, values)
+    residual = observed - exact
+    n_used, n_par = int(inlier.sum()), 2 * m
+    rms = float(np.sqrt(np.mean(residual[inlier] ** 2))) if n_used else math.nan
+    se = _standard_errors(drive, residual, inlier, jac, n_used, n_par, warnings)
+    se[at_bound != 0] = math.nan
+    outliers = _outlier_records(readings, idx, observed, exact, residual, sigma, out)
+    return _part_fits(model, p, se, n_used, rms, outliers, warnings), inlier, out, exact
+
+
+def _fitted_per_reading(readings: Readings, fitted_values: dict) -> np.ndarray:
+    """Settlement of the fitted model at every reading, from each fitted drive's values; NaN elsewhere. [mm]"""
+    fitted_mm = np.full(len(readings), np.nan)
+    for d, values in fitted_values.items():
+        fitted_mm[readings.drive == d] = values
+    return fitted_mm
+
+
 def back_analysis(project: Project, readings: Readings, per_reach: bool = False,
                   outlier_limit: float = OUTLIER_LIMIT, min_face_past_m: float | None = None) -> BackAnalysis:
     """Fit volume loss and K to monitoring readings, per drive (or per reach), robustly (see the module docstring).
@@ -413,100 +563,21 @@ def back_analysis(project: Project, readings: Readings, per_reach: bool = False,
     in_fit = np.zeros(len(readings), dtype=bool)
     outlier = np.zeros(len(readings), dtype=bool)
     fitted_values = {}
-    for d, drive in enumerate(project.drives):
+    for d in range(len(project.drives)):
         idx = np.flatnonzero(readings.drive == d)
         if not len(idx):
             continue
-        keys = [None] if not (per_reach and drive.reaches) else list(range(len(drive.reaches) + 1))
-        model = _DriveModel(project, ground, d, readings, idx, keys)
-        observed = readings.settlement_mm[idx]
-        k0 = model.project_k()
-        model.build(k0)
-
-        # Which parts the readings see, and which readings lie below a crown (no model there).
-        with np.errstate(invalid="ignore"):
-            seen = (model.unit(k0) >= SEEN_SHARE * model.full_smax_mm()[None, :]).sum(axis=0)
-        model.fitted = seen >= MIN_READINGS_SEEN
-        for p in np.flatnonzero(~model.fitted):
-            warnings.append(f"{_describe(drive, keys[p])}: not fitted, {int(seen[p])} reading(s) see it (at least "
-                            f"{MIN_READINGS_SEEN} must get {SEEN_SHARE:.0%} of its Smax); the project's values kept")
-        if not model.fitted.any():
+        drive_fit = _fit_drive(project, ground, readings, d, idx, per_reach, outlier_limit, min_face_past_m, warnings)
+        if drive_fit is None:
             continue
-        k0 = k0[model.fitted]
-        m = len(k0)
-        model.build(k0)
-        widest = model.unit(np.full(m, K_BOUNDS[1]))
-        deep = np.isnan(widest).any(axis=1) | np.isnan(model.fixed()) | np.isnan(model.unit(k0)).any(axis=1)
-        active = ~deep
-        if min_face_past_m is not None:
-            past = readings.face_chainage_m[idx] - point_chainage_m(model.geometry[0], model.x, model.y)
-            near = ~deep & (past < min_face_past_m)
-            active &= ~near
-            if near.any():
-                warnings.append(f"drive {json.dumps(drive.name)}: {int(near.sum())} reading(s) taken with the face "
-                                f"less than {min_face_past_m:g} m past the point left out of the fit "
-                                "(min_face_past_m)")
-        if deep.any():
-            ids = sorted(set(readings.point_id[idx][deep]))
-            warnings.append(f"drive {json.dumps(drive.name)}: {int(deep.sum())} reading(s) at points at or below the "
-                            f"crown left out (no subsurface trough there): {', '.join(ids[:10])}"
-                            + (" ..." if len(ids) > 10 else ""))
-        if active.sum() <= 2 * m:
-            warnings.append(f"drive {json.dumps(drive.name)}: not fitted, {int(active.sum())} usable reading(s) for "
-                            f"{2 * m} values")
-            continue
-        p = _start(model, observed, active, k0)
-        for _ in range(MAX_ROUNDS):
-            p, out, sigma, jac, at_bound = _solve(model, observed, active, p, outlier_limit)
-            if not model.build(p[m:]):
-                break
-        inlier = active & ~out
-
-        values = {keys[q]: (float(p[j]), float(p[m + j])) for j, q in enumerate(model.parts)}
-        at_fit = replace(project, drives=tuple(drive_with_values(dr, values) if dr is drive else dr
-                                               for dr in project.drives))
-        exact = predicted_settlement_mm(at_fit, readings.subset(idx), ground)
-        residual = observed - exact
-        n_used, n_par = int(inlier.sum()), 2 * m
-        rms = float(np.sqrt(np.mean(residual[inlier] ** 2))) if n_used else math.nan
-        se = np.full(n_par, math.nan)
-        if n_used > n_par:
-            s2 = float(np.sum(residual[inlier] ** 2)) / (n_used - n_par)
-            jtj = jac.T @ jac
-            if np.linalg.cond(jtj) < 1e12:
-                se = np.sqrt(np.diag(np.linalg.inv(jtj)) * s2)
-            else:
-                warnings.append(f"drive {json.dumps(drive.name)}: the readings cannot tell volume loss and K apart "
-                                "(their Jacobian is singular); no standard errors")
-        else:
-            warnings.append(f"drive {json.dumps(drive.name)}: {n_used} reading(s) for {n_par} values; no standard "
-                            "errors")
-        se[at_bound != 0] = math.nan
-        outliers = [{
-            "point_id": str(readings.point_id[idx][r]), "date": str(readings.date[idx][r]),
-            "line": int(readings.line[idx][r]), "reading_mm": float(observed[r]), "fitted_mm": float(exact[r]),
-            "residual_mm": float(residual[r]), "standardised_residual": float(residual[r] / sigma),
-        } for r in np.flatnonzero(out)]
-        for j, q in enumerate(model.parts):
-            for value, (lo, hi), name in ((p[j], VOLUME_LOSS_BOUNDS_PCT, "volume_loss_pct"),
-                                          (p[m + j], K_BOUNDS, "trough_width_k")):
-                if value <= lo * (1 + 1e-9) or value >= hi * (1 - 1e-9):
-                    warnings.append(f"{_describe(drive, keys[q])}: fitted {name} = {value:g} is at the bound of "
-                                    f"its range ({lo:g} to {hi:g}); the readings do not hold it")
-            fits[(drive.name, keys[q])] = FitResult(
-                volume_loss_pct=float(p[j]), trough_width_k=float(p[m + j]), volume_loss_pct_se=float(se[j]),
-                trough_width_k_se=float(se[m + j]), readings_used=n_used, rms_mm=rms, outliers=outliers)
-        in_fit[idx] = inlier
-        outlier[idx] = out
-        fitted_values[d] = exact
+        drive_fits, in_fit[idx], outlier[idx], fitted_values[d] = drive_fit
+        fits.update(drive_fits)
     if not fits:
         raise InputError(f"{readings.source}: no drive could be fitted: no part of any drive is seen by at least "
                          f"{MIN_READINGS_SEEN} readings")
-    fitted_mm = np.full(len(readings), np.nan)
-    for d, values in fitted_values.items():
-        fitted_mm[readings.drive == d] = values
-    return BackAnalysis(fits=fits, fitted_mm=fitted_mm, in_fit=in_fit, outlier=outlier, warnings=warnings,
-                        outlier_limit=outlier_limit, min_face_past_m=min_face_past_m)
+    return BackAnalysis(fits=fits, fitted_mm=_fitted_per_reading(readings, fitted_values), in_fit=in_fit,
+                        outlier=outlier, warnings=warnings, outlier_limit=outlier_limit,
+                        min_face_past_m=min_face_past_m)
 
 
 # --------------------------------------------------------------------------------------- comparison, report

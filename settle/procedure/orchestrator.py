@@ -2,8 +2,9 @@
 
     result = Assessment(project).greenfield().buildings().utilities().face().result
 
-Each step can be run and tested alone; the numbers come from the model functions in `troughs`, superposed by
-`field`, on the geometry of `route`.
+Each step can be run and tested alone; the numbers come from the model functions of `settle.engine.troughs`,
+superposed by `settle.engine.field`, on the route of `settle.inputs.route`, and from the assessments of
+`settle.assessments`.
 """
 from __future__ import annotations
 
@@ -43,14 +44,7 @@ class Assessment:
     def route(self) -> "Assessment":
         """Axis, chainage, depth and cover of every drive, cut into tunnel elements over the excavated length."""
         t = time.perf_counter()
-        where = self.project.path.name if self.project.path else "project"
-        parts = []
-        for index, drive in enumerate(self.project.drives):
-            geometry, warnings = build_drive(drive, self.ground, where)
-            parts.append(tunnel_elements(drive, geometry, self.ground, index))
-            self.drives.append(geometry)
-            self.warnings.extend(warnings)
-        self.elements = Elements.concatenate(parts)
+        self.drives, self.elements = drives_and_elements(self.project, self.ground, self.warnings)
         self._timed("route", t)
         return self
 
@@ -60,114 +54,75 @@ class Assessment:
             self.route()
         out = self.project.output
         t = time.perf_counter()
-        grid, tiles, volume = settlement_grid(
-            self.elements,
-            out.grid_spacing_m,
-            out.precision_mm / 1e3,
-            out.grid_threshold_mm,
-            progress=lambda f: self.progress("grid", f),
-        )
+        grid, tiles, volume = settlement_grid(self.elements, out.grid_spacing_m, out.precision_mm / 1e3,
+                                              out.grid_threshold_mm, progress=lambda f: self.progress("grid", f))
         self._timed("grid", t)
         t = time.perf_counter()
-        points, ids = None, ()
-        if self.project.points is not None:
-            pts = self.project.points
-            points = self.movements_at(pts.x_m, pts.y_m, pts.depth_m)
-            ids = pts.ids
-            deep = [pid for pid, s in zip(ids, points.settlement_mm) if np.isnan(s)]
-            if deep:
-                shown = ", ".join(deep[:10]) + (" ..." if len(deep) > 10 else "")
-                self.warnings.append(
-                    f"{len(deep)} point(s) lie at or below the crown of a drive that reaches them, where the "
-                    f"subsurface trough is not defined; their movements are left empty: {shown}"
-                )
+        points, ids = point_movements(self.project.points, self.movements_at, self.warnings)
         self._timed("points", t)
-        self._result = Result(
-            project=self.project,
-            drives=self.drives,
-            grid=grid,
-            tiles=tiles,
-            points=points,
-            point_ids=ids,
-            settlement_volume_m3=volume,
-            warnings=self.warnings,
-            timings_s=self.timings,
-            face=self._face,
-            utilities=self._utilities,
-            buildings=self._buildings,
-        )
+        self._result = Result(project=self.project, drives=self.drives, grid=grid, tiles=tiles, points=points,
+                              point_ids=ids, settlement_volume_m3=volume, warnings=self.warnings,
+                              timings_s=self.timings, face=self._face, utilities=self._utilities,
+                              buildings=self._buildings)
         return self
 
     def buildings(self) -> "Assessment":
         """Stage 1 screening and stage 2 deep-beam damage categories of every building in [buildings]."""
-        p = self.project
-        if p.buildings is None:
-            return self
         from ..assessments.buildings import assess_buildings
 
-        t = time.perf_counter()
-        self.progress("buildings", 0.0)
-        self._buildings = assess_buildings(p.buildings, self.movements_at, p.building_options)
-        self.progress("buildings", 1.0)
-        self._timed("buildings", t)
-        if self._result is not None:
-            self._result.buildings = self._buildings
+        if self.project.buildings is not None:
+            self._buildings = self._assets("buildings", assess_buildings, self.project.buildings,
+                                           self.project.building_options)
         return self
 
     def utilities(self) -> "Assessment":
         """Strains, joint rotations and openings of every buried pipe in [utilities], and their verdicts."""
-        p = self.project
-        if p.utilities is None:
-            return self
         from ..assessments.utilities import assess_utilities
 
-        t = time.perf_counter()
-        self.progress("utilities", 0.0)
-        self._utilities = assess_utilities(p.utilities, self.movements_at, p.utility_options)
-        self.progress("utilities", 1.0)
-        self.warnings.extend(self._utilities.warnings)
-        self._timed("utilities", t)
-        if self._result is not None:
-            self._result.utilities = self._utilities
+        if self.project.utilities is not None:
+            self._utilities = self._assets("utilities", assess_utilities, self.project.utilities,
+                                           self.project.utility_options)
         return self
+
+    def _assets(self, stage: str, assess, assets, options):
+        """One asset assessment with its progress, warnings and timing; its results, also in the run's result."""
+        t = time.perf_counter()
+        self.progress(stage, 0.0)
+        results = assess(assets, self.movements_at, options)
+        self.progress(stage, 1.0)
+        self.warnings.extend(getattr(results, "warnings", ()))
+        self._timed(stage, t)
+        if self._result is not None:
+            setattr(self._result, stage, results)
+        return results
 
     def face(self) -> "Assessment":
         """Face support pressure window along every drive (runs when the layers carry their strengths)."""
         if self.elements is None:
             self.route()
-        p = self.project
-        if not p.strengths:
-            return self
-        from ..assessments.face_stations import face_stations
-
-        t = time.perf_counter()
-        where = p.path.name if p.path else "project"
-        for k, (drive, geometry) in enumerate(zip(p.drives, self.drives)):
-            self.progress("face support", k / len(p.drives))
-            stations = face_stations(geometry, self.ground, p.strengths, p.rivers, p.face, drive.face_support, where)
-            self._face.append(stations)
-            self.warnings.extend(stations.warnings)
-        self._timed("face", t)
-        if self._result is not None:
-            self._result.face = self._face
+        if self.project.strengths:
+            t = time.perf_counter()
+            self._face.extend(face_checks(self.project, self.ground, self.drives, self.progress, self.warnings))
+            self._timed("face", t)
+            if self._result is not None:
+                self._result.face = self._face
         return self
 
     def movements_at(self, x, y, depth_m):
         """Movements of every drive, at the run's face positions, at places and their depths below ground."""
         if self.elements is None:
             self.route()
-        return movements_at_points(
-            self.elements, self.ground, x, y, depth_m, precision_m=self.project.output.precision_mm / 1e3
-        )
+        return movements_at_points(self.elements, self.ground, x, y, depth_m,
+                                   precision_m=self.project.output.precision_mm / 1e3)
 
     @property
     def building_results(self):
-        """The buildings step's results (settle.buildings.BuildingResults), without computing the grid."""
+        """The buildings step's results (settle.assessments.buildings.BuildingResults), without computing the grid."""
         return self._buildings
 
     @property
     def utility_results(self):
-        """The utilities step's results (settle.pipelines.UtilityResults), without computing the grid."""
+        """The utilities step's results (settle.assessments.utilities.UtilityResults), without computing the grid."""
         return self._utilities
 
     @property
@@ -175,6 +130,46 @@ class Assessment:
         if self._result is None:
             self.greenfield()
         return self._result
+
+
+def drives_and_elements(project: Project, ground: GroundModel, warnings: list[str]):
+    """The route of every drive (with its checks; warnings added to `warnings`) and all their tunnel elements."""
+    where = project.path.name if project.path else "project"
+    drives, parts = [], []
+    for index, drive in enumerate(project.drives):
+        geometry, found = build_drive(drive, ground, where)
+        parts.append(tunnel_elements(drive, geometry, ground, index))
+        drives.append(geometry)
+        warnings.extend(found)
+    return drives, Elements.concatenate(parts)
+
+
+def point_movements(points, movements_at, warnings: list[str]):
+    """Movements at the places of [points] and their ids ((None, ()) without them); warns of points below a crown."""
+    if points is None:
+        return None, ()
+    moved = movements_at(points.x_m, points.y_m, points.depth_m)
+    deep = [pid for pid, s in zip(points.ids, moved.settlement_mm) if np.isnan(s)]
+    if deep:
+        shown = ", ".join(deep[:10]) + (" ..." if len(deep) > 10 else "")
+        warnings.append(f"{len(deep)} point(s) lie at or below the crown of a drive that reaches them, where the "
+                        f"subsurface trough is not defined; their movements are left empty: {shown}")
+    return moved, points.ids
+
+
+def face_checks(project: Project, ground: GroundModel, drives, progress, warnings: list[str]) -> list:
+    """The face support window along every drive (`face_stations`), in drive order; warnings added to `warnings`."""
+    from ..assessments.face_stations import face_stations
+
+    where = project.path.name if project.path else "project"
+    checks = []
+    for k, (drive, geometry) in enumerate(zip(project.drives, drives)):
+        progress("face support", k / len(project.drives))
+        stations = face_stations(geometry, ground, project.strengths, project.rivers, project.face,
+                                 drive.face_support, where)
+        checks.append(stations)
+        warnings.extend(stations.warnings)
+    return checks
 
 
 def run(project: Project | str | Path, progress=None) -> Result:
