@@ -192,9 +192,7 @@ def settlement_lines(tiles: SettlementTiles, levels_mm, where: str = "contour_le
 
     Parameters
     ----------
-    tiles : SettlementTiles   Surface settlement on the project grid. [mm]
-    levels_mm : sequence      Contour levels, positive and strictly increasing. [mm]
-    where : str               Where the levels came from, for error messages.
+    tiles, levels_mm, where   As for `settlement_bands`; the levels are the contour levels here. [mm]
 
     Returns
     -------

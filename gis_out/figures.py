@@ -26,6 +26,7 @@ water level of a river), the figure says so rather than making it up.
 from __future__ import annotations
 
 import json
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -102,6 +103,13 @@ def read_layer(gpkg, name: str, bbox=None) -> gpd.GeoDataFrame:
 def _require(gpkg, names: set[str], layer: str) -> None:
     if layer not in names:
         raise InputError(f"{gpkg}: has no layer {layer!r}; it holds {sorted(names)}")
+
+
+def _run_with_route(gpkg, summary) -> tuple[dict, set[str]]:
+    """The run's summary and the names of its layers; InputError when it has no `route` layer."""
+    info, names = read_summary(summary), layer_names(gpkg)
+    _require(gpkg, names, "route")
+    return info, names
 
 
 # ------------------------------------------------------------------------------------------------------ the axis
@@ -204,12 +212,10 @@ def ground_profile(gpkg, names: set[str], axis: DriveAxis) -> GroundProfile | No
     run has no face stations for the drive (the outputs then hold no ground levels along the route)."""
     if "face_stations" not in names:
         return _profile_from_route(gpkg, names, axis)
-    fs = read_layer(gpkg, "face_stations")
-    fs = fs[fs["drive"] == axis.name].sort_values("chainage_m")
+    fs = _rows_of_drive(gpkg, "face_stations", axis)
     if fs.empty:
         return None
-    c = fs["chainage_m"].to_numpy(float)
-    cover = fs["cover_m"].to_numpy(float)
+    c, cover = fs["chainage_m"].to_numpy(float), fs["cover_m"].to_numpy(float)
     if "surface_level_m" in fs:
         surface, source = fs["surface_level_m"].to_numpy(float), "face stations, surface_level_m"
     else:
@@ -220,16 +226,20 @@ def ground_profile(gpkg, names: set[str], axis: DriveAxis) -> GroundProfile | No
     return GroundProfile(c, surface, cover, flag("in_river"), flag("low_cover"), water, source)
 
 
+def _rows_of_drive(gpkg, layer: str, axis: DriveAxis):
+    """The features of a layer that belong to one drive, in chainage order."""
+    rows = read_layer(gpkg, layer)
+    return rows[rows["drive"] == axis.name].sort_values("chainage_m")
+
+
 def _profile_from_route(gpkg, names: set[str], axis: DriveAxis) -> GroundProfile | None:
     """The ground along a drive from the `route_profile` layer (every metre; no river information)."""
     if "route_profile" not in names:
         return None
-    rp = read_layer(gpkg, "route_profile")
-    rp = rp[rp["drive"] == axis.name].sort_values("chainage_m")
+    rp = _rows_of_drive(gpkg, "route_profile", axis)
     if rp.empty:
         return None
-    c = rp["chainage_m"].to_numpy(float)
-    cover = rp["cover_m"].to_numpy(float)
+    c, cover = rp["chainage_m"].to_numpy(float), rp["cover_m"].to_numpy(float)
     none = np.zeros(len(rp), bool)
     return GroundProfile(c, rp["ground_level_m"].to_numpy(float), cover, none,
                          cover < 2.0 * axis.outer_diameter_m, None, "route_profile, ground_level_m")
@@ -321,6 +331,16 @@ def save_png(fig, path, dpi: int = PNG_DPI) -> Path:
     return _save_png(fig, path, dpi)
 
 
+@contextmanager
+def _closed_on_failure(fig):
+    """Close the figure when a drawing step fails, and let the error go on."""
+    try:
+        yield fig
+    except BaseException:
+        plt.close(fig)
+        raise
+
+
 def line_style(symbol) -> dict:
     """matplotlib keywords of a styles.Symbol line (width and dashes from mm to points)."""
     lw = max(symbol.width_mm * MM_TO_PT, 0.5)
@@ -404,101 +424,126 @@ def plan_map_png(gpkg, summary, path, dpi: int = PNG_DPI) -> Path:
     Chainage ticks every 50 m, or every 100 m on maps wider than 1 km, labelled with the chainage [m]. The part of a
     drive not yet excavated (beyond its face) is dashed, and the face is marked.
     """
-    info = read_summary(summary)
-    names = layer_names(gpkg)
-    _require(gpkg, names, "route")
+    info, names = _run_with_route(gpkg, summary)
     route = read_layer(gpkg, "route")
     axes = drive_axes(route)
     bands = read_layer(gpkg, "settlement_bands") if "settlement_bands" in names else None
     lines = read_layer(gpkg, "settlement_lines") if "settlement_lines" in names else None
-
-    parts = [route.total_bounds] + ([bands.total_bounds] if bands is not None and len(bands) else [])
-    b = np.array(parts)
-    minx, miny, maxx, maxy = b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()
-    pad = max(20.0, 0.08 * max(maxx - minx, maxy - miny))
-    box = (minx - pad, miny - pad, maxx + pad, maxy + pad)
+    box = _plan_extent(route, bands)
     width = box[2] - box[0]
 
     fig = plt.figure(figsize=(14.0, 9.5))
     ax = fig.add_axes([0.06, 0.09, 0.62, 0.80])
     handles: list = []
-    try:
-        # Settlement bands and contour lines.
-        if bands is not None and len(bands):
-            handles.append(Patch(alpha=0, label="Settlement (positive down)"))
-            present = set(bands["band"].astype(int).tolist())
-            for c in styles.band_style(bands, contour_levels(info)).classes:
-                if c.value in present:
-                    sym = c.symbol
-                    bands[bands["band"] == c.value].plot(ax=ax, color=sym.colour, alpha=sym.opacity,
-                                                         edgecolor="none", zorder=1)
-                    handles.append(Patch(facecolor=sym.colour, alpha=sym.opacity, edgecolor=sym.outline,
-                                         label=c.label))
-        if lines is not None and len(lines):
-            lines.plot(ax=ax, color=CONTOUR_COLOUR, linewidth=0.6, zorder=2)
-            for row in lines.itertuples(index=False):
-                parts_ = list(getattr(row.geometry, "geoms", [row.geometry]))
-                longest = max(parts_, key=lambda g: g.length)
-                p = longest.interpolate(0.5, normalized=True)
-                ax.text(p.x, p.y, f"{row.level_mm:g}", fontsize=6.5, ha="center", va="center", zorder=6,
-                        bbox=dict(boxstyle="round,pad=0.1", fc="white", ec="none", alpha=0.8))
-            handles.append(Line2D([], [], color=CONTOUR_COLOUR, lw=0.6, label="settlement contours, labelled in mm"))
-
-        # Buildings by damage category.
+    with _closed_on_failure(fig):
+        handles += _plan_bands(ax, bands, info)
+        handles += _plan_contours(ax, lines)
         if "buildings" in names:
             handles += _plan_buildings(ax, read_layer(gpkg, "buildings", bbox=box))
-
-        # Pipes by status.
         if "utilities" in names:
             handles += _plan_utilities(ax, read_layer(gpkg, "utilities", bbox=box))
-
-        # Routes, chainage ticks, faces.
-        step = 50.0 if width <= CHAINAGE_STEP_SWITCH_M else 100.0
-        handles.append(Patch(alpha=0, label="Drives"))
-        for k, a in enumerate(axes, start=1):
-            _plan_route(ax, a, k, step, width)
-            handles.append(Line2D([], [], color=ROUTE_COLOUR, lw=2.0, label=f"D{k}: {a.name}"))
-        handles.append(Line2D([], [], color=ROUTE_COLOUR, lw=1.2, ls=(0, (4, 3)), label="not yet excavated"))
-        if any(np.isfinite(a.face_chainage_m) for a in axes):
-            handles.append(Line2D([], [], color="white", marker="D", mec=ROUTE_COLOUR, mfc="white", ls="none",
-                                  label="face position"))
-        handles.append(Line2D([], [], color=ROUTE_COLOUR, lw=0.8, marker="|", ls="none",
-                              label=f"chainage ticks every {step:g} m, labelled in m"))
-
+        handles += _plan_routes(ax, axes, width)
         if "face_stations" in names:
             handles += _plan_face(ax, read_layer(gpkg, "face_stations", bbox=box))
-
-        # Grow the box to the shape of the axes, so one metre is as long east as north.
-        pos = ax.get_position()
-        shape = (pos.height * fig.get_figheight()) / (pos.width * fig.get_figwidth())
-        cx, cy = 0.5 * (box[0] + box[2]), 0.5 * (box[1] + box[3])
-        half_w = 0.5 * max(box[2] - box[0], (box[3] - box[1]) / shape)
-        ax.set_xlim(cx - half_w, cx + half_w)
-        ax.set_ylim(cy - half_w * shape, cy + half_w * shape)
-        ax.set_aspect("equal", adjustable="box")
-        ax.ticklabel_format(useOffset=False, style="plain")
-        ax.tick_params(labelsize=7)
-        ax.set_xlabel("easting (m)", fontsize=8)
-        ax.set_ylabel("northing (m)", fontsize=8)
-        ax.grid(alpha=0.2, lw=0.5)
+        _fit_map_to_axes(fig, ax, box)
         _north_arrow(fig)
-        x0, x1 = ax.get_xlim()
-        y0, y1 = ax.get_ylim()
-        length = _nice(0.2 * (x1 - x0))
-        ax.add_artist(AnchoredSizeBar(ax.transData, length, f"{length:g} m", "lower left", pad=0.6, borderpad=0.8,
-                                      sep=4, frameon=True, size_vertical=0.006 * (y1 - y0), fontproperties={"size": 8}))
-
-        crs = _crs_text(route, info)
-        ax.set_title(f"{info.get('project', '')}\nPlan: greenfield surface settlement{_stage_text(axes)}",
-                     fontsize=11, loc="left")
-        fig.text(0.06, 0.03, crs, fontsize=8, color="0.2")
-        fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.70, 0.89), fontsize=7.5, frameon=True,
-                   title="Legend", title_fontsize=9, alignment="left")
-        _caution(fig, info)
-    except BaseException:
-        plt.close(fig)
-        raise
+        _scale_bar(ax)
+        _plan_title_legend_caution(fig, ax, route, axes, info, handles)
     return save_png(fig, path, dpi)
+
+
+def _plan_extent(route: gpd.GeoDataFrame, bands: gpd.GeoDataFrame | None) -> tuple:
+    """The map box (minx, miny, maxx, maxy) around the routes and the settlement bands, with a margin. [m]"""
+    parts = [route.total_bounds] + ([bands.total_bounds] if bands is not None and len(bands) else [])
+    b = np.array(parts)
+    minx, miny, maxx, maxy = b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()
+    pad = max(20.0, 0.08 * max(maxx - minx, maxy - miny))
+    return (minx - pad, miny - pad, maxx + pad, maxy + pad)
+
+
+def _plan_bands(ax, bands: gpd.GeoDataFrame | None, info: dict) -> list:
+    """Fill the settlement bands present, in the GIS style's colours; their legend entries."""
+    handles: list = []
+    if bands is not None and len(bands):
+        handles.append(Patch(alpha=0, label="Settlement (positive down)"))
+        present = set(bands["band"].astype(int).tolist())
+        for c in styles.band_style(bands, contour_levels(info)).classes:
+            if c.value in present:
+                sym = c.symbol
+                bands[bands["band"] == c.value].plot(ax=ax, color=sym.colour, alpha=sym.opacity,
+                                                     edgecolor="none", zorder=1)
+                handles.append(Patch(facecolor=sym.colour, alpha=sym.opacity, edgecolor=sym.outline,
+                                     label=c.label))
+    return handles
+
+
+def _plan_contours(ax, lines: gpd.GeoDataFrame | None) -> list:
+    """Draw the settlement contours, each labelled with its level [mm] at the middle of its longest part; the
+    legend entry."""
+    handles: list = []
+    if lines is not None and len(lines):
+        lines.plot(ax=ax, color=CONTOUR_COLOUR, linewidth=0.6, zorder=2)
+        for row in lines.itertuples(index=False):
+            parts_ = list(getattr(row.geometry, "geoms", [row.geometry]))
+            longest = max(parts_, key=lambda g: g.length)
+            p = longest.interpolate(0.5, normalized=True)
+            ax.text(p.x, p.y, f"{row.level_mm:g}", fontsize=6.5, ha="center", va="center", zorder=6,
+                    bbox=dict(boxstyle="round,pad=0.1", fc="white", ec="none", alpha=0.8))
+        handles.append(Line2D([], [], color=CONTOUR_COLOUR, lw=0.6, label="settlement contours, labelled in mm"))
+    return handles
+
+
+def _plan_routes(ax, axes: list[DriveAxis], width: float) -> list:
+    """Draw every drive with its chainage ticks and face; the legend entries of the drives. [width: map, m]"""
+    step = 50.0 if width <= CHAINAGE_STEP_SWITCH_M else 100.0
+    handles: list = [Patch(alpha=0, label="Drives")]
+    for k, a in enumerate(axes, start=1):
+        _plan_route(ax, a, k, step, width)
+        handles.append(Line2D([], [], color=ROUTE_COLOUR, lw=2.0, label=f"D{k}: {a.name}"))
+    handles.append(Line2D([], [], color=ROUTE_COLOUR, lw=1.2, ls=(0, (4, 3)), label="not yet excavated"))
+    if any(np.isfinite(a.face_chainage_m) for a in axes):
+        handles.append(Line2D([], [], color="white", marker="D", mec=ROUTE_COLOUR, mfc="white", ls="none",
+                              label="face position"))
+    handles.append(Line2D([], [], color=ROUTE_COLOUR, lw=0.8, marker="|", ls="none",
+                          label=f"chainage ticks every {step:g} m, labelled in m"))
+    return handles
+
+
+def _fit_map_to_axes(fig, ax, box: tuple) -> None:
+    """Grow the box to the shape of the axes, so one metre is as long east as north, and label the axes. [box: m]"""
+    pos = ax.get_position()
+    shape = (pos.height * fig.get_figheight()) / (pos.width * fig.get_figwidth())
+    cx, cy = 0.5 * (box[0] + box[2]), 0.5 * (box[1] + box[3])
+    half_w = 0.5 * max(box[2] - box[0], (box[3] - box[1]) / shape)
+    ax.set_xlim(cx - half_w, cx + half_w)
+    ax.set_ylim(cy - half_w * shape, cy + half_w * shape)
+    ax.set_aspect("equal", adjustable="box")
+    ax.ticklabel_format(useOffset=False, style="plain")
+    ax.tick_params(labelsize=7)
+    ax.set_xlabel("easting (m)", fontsize=8)
+    ax.set_ylabel("northing (m)", fontsize=8)
+    ax.grid(alpha=0.2, lw=0.5)
+
+
+def _scale_bar(ax) -> None:
+    """A scale bar of a round length near a fifth of the map's width, at the lower left."""
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    length = _nice(0.2 * (x1 - x0))
+    ax.add_artist(AnchoredSizeBar(ax.transData, length, f"{length:g} m", "lower left", pad=0.6, borderpad=0.8,
+                                  sep=4, frameon=True, size_vertical=0.006 * (y1 - y0), fontproperties={"size": 8}))
+
+
+def _plan_title_legend_caution(fig, ax, route: gpd.GeoDataFrame, axes: list[DriveAxis], info: dict,
+                               handles: list) -> None:
+    """The map's title with the construction stage, the CRS under it, the legend beside it and the caution."""
+    crs = _crs_text(route, info)
+    ax.set_title(f"{info.get('project', '')}\nPlan: greenfield surface settlement{_stage_text(axes)}",
+                 fontsize=11, loc="left")
+    fig.text(0.06, 0.03, crs, fontsize=8, color="0.2")
+    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.70, 0.89), fontsize=7.5, frameon=True,
+               title="Legend", title_fontsize=9, alignment="left")
+    _caution(fig, info)
 
 
 def _stage_text(axes: list[DriveAxis]) -> str:
@@ -629,22 +674,19 @@ def longitudinal_section_png(gpkg, summary, drive: str, path, dpi: int = PNG_DPI
     gpkg : str or Path        The run's GeoPackage.
     summary : dict or path    The run's summary.json.
     drive : str               The drive's name (the `drive` field of the route layer).
-    path : str or Path        The PNG to write; its folder must exist.
-    dpi : int                 Resolution. [dots per inch]
+    path, dpi                 The PNG to write (its folder must exist) and its resolution, as for `plan_map_png`.
 
     Returns
     -------
-    Path  The absolute path written.
+    Path  The absolute path of the PNG.
 
     Notes
     -----
     Ground levels along the route come from the face stations when the face check ran (with river beds), else from
-    the `route_profile` layer; with neither the section shows the tunnel alone and says so. The water level over a river reach is drawn only when the face stations carry a
-    `water_level_m` field.
+    the `route_profile` layer; with neither the section shows the tunnel alone and says so. The water level over a
+    river reach is drawn only when the face stations carry a `water_level_m` field.
     """
-    info = read_summary(summary)
-    names = layer_names(gpkg)
-    _require(gpkg, names, "route")
+    info, names = _run_with_route(gpkg, summary)
     axis = _drive(drive_axes(read_layer(gpkg, "route")), drive, gpkg)
     spacing = grid_spacing(info)
     profile = ground_profile(gpkg, names, axis)
@@ -659,7 +701,7 @@ def longitudinal_section_png(gpkg, summary, drive: str, path, dpi: int = PNG_DPI
     ratios = [3.0, 2.0, 3.0][:rows]
     fig, panels = plt.subplots(rows, 1, sharex=True, figsize=(12.0, 3.0 + 2.4 * rows),
                                gridspec_kw={"height_ratios": ratios})
-    try:
+    with _closed_on_failure(fig):
         sec, sett = panels[0], panels[1]
         _section_panel(sec, axis, profile)
         _settlement_panel(sett, ch_s, settle_s, spacing, info)
@@ -676,9 +718,6 @@ def longitudinal_section_png(gpkg, summary, drive: str, path, dpi: int = PNG_DPI
         sec.set_title(f"{info.get('project', '')}\nLongitudinal section: {axis.name}", fontsize=10, loc="left")
         fig.tight_layout(rect=(0, 0.03, 1, 1))
         _caution(fig, info)
-    except BaseException:
-        plt.close(fig)
-        raise
     return save_png(fig, path, dpi)
 
 
@@ -884,9 +923,7 @@ def transverse_sections_png(gpkg, summary, drive: str, chainages_m, path, half_w
     ------
     InputError  A chainage outside the drive, or no chainage given (named as `[output] sections_chainage_m`).
     """
-    info = read_summary(summary)
-    names = layer_names(gpkg)
-    _require(gpkg, names, "route")
+    info, names = _run_with_route(gpkg, summary)
     axis = _drive(drive_axes(read_layer(gpkg, "route")), drive, gpkg)
     key = "[output] sections_chainage_m"
     try:
@@ -908,7 +945,7 @@ def transverse_sections_png(gpkg, summary, drive: str, chainages_m, path, half_w
     cols = min(len(sections), 3)
     rows = int(np.ceil(len(sections) / cols))
     fig = plt.figure(figsize=(max(4.8 * cols + 0.6, 7.5), 7.0 * rows + 1.3))
-    try:
+    with _closed_on_failure(fig):
         head, body, foot = fig.subfigures(3, 1, height_ratios=[0.9, 7.0 * rows, 0.4])
         head.text(0.01, 0.5, f"{info.get('project', '')}\nTransverse sections across {axis.name}\noffset from the "
                   "axis, + to the right looking up-chainage", fontsize=9.5, va="center")
@@ -916,9 +953,6 @@ def transverse_sections_png(gpkg, summary, drive: str, chainages_m, path, half_w
         for sub, sec in zip(subs, sections):
             _draw_section(sub, sec, axis, info)
         _caution(foot, info, y=0.3)
-    except BaseException:
-        plt.close(fig)
-        raise
     return save_png(fig, path, dpi)
 
 

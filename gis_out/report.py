@@ -300,7 +300,7 @@ def project_inputs(project) -> dict:
 # ---------------------------------------------------------------------------------------------- sections
 def _title_blocks(run: RunOutputs, date: dt.date, inputs: dict | None) -> list[Block]:
     s = run.summary
-    from settle import __version__
+    from settle.version import __version__
 
     outputs = s.get("outputs", {})
     files = [run.gpkg.name, "summary.json"] + [v for k, v in outputs.items() if k not in ("geopackage", "summary")
@@ -324,9 +324,19 @@ def _title_blocks(run: RunOutputs, date: dt.date, inputs: dict | None) -> list[B
 
 def _inputs_blocks(run: RunOutputs, inputs: dict | None) -> list[Block]:
     b = [Block("break"), Block("heading", SECTIONS[0])]
-    route = run.frames["route"]
+    b += _drive_blocks(run.frames["route"], inputs)
+    if not inputs:
+        b.append(Block("text", "The project file was not given to the report, so the volume loss per reach, the "
+                               "ground layers and the settings, which are not in the run's outputs, are not listed "
+                               "here: give the project file to list them."))
+        return b
+    return b + _reach_blocks(inputs) + _ground_blocks(inputs) + _settings_blocks(inputs)
+
+
+def _drive_blocks(route, inputs: dict | None) -> list[Block]:
+    """1.1: the drives of the route layer, with their diameters, volume loss and K from the project when given."""
     src = f"Source: the project file {inputs['project_file']}" if inputs else "Source: the route layer"
-    b.append(Block("subheading", "1.1 Drives"))
+    b = [Block("subheading", "1.1 Drives")]
     names = [f"D{k}  {d}" for k, d in enumerate(route["drive"], start=1)]
     b.append(Block("mono", lines=names))
     by_name = {d["name"]: d for d in inputs["drives"]} if inputs else {}
@@ -347,12 +357,12 @@ def _inputs_blocks(run: RunOutputs, inputs: dict | None) -> list[Block]:
                            (" ([[drives]] and their alignment files: "
                             + "; ".join(f"D{k} {d['key']}, {d['alignment']}" for k, d in
                                         enumerate(inputs["drives"], start=1)) + ")." if inputs else ".")))
-    if not inputs:
-        b.append(Block("text", "The project file was not given to the report, so the volume loss per reach, the "
-                               "ground layers and the settings, which are not in the run's outputs, are not listed "
-                               "here: give the project file to list them."))
-        return b
-    b.append(Block("subheading", "1.2 Volume loss per reach"))
+    return b
+
+
+def _reach_blocks(inputs: dict) -> list[Block]:
+    """1.2: the volume loss [%] and K of each drive outside its reaches, then of each reach."""
+    b = [Block("subheading", "1.2 Volume loss per reach")]
     rows = []
     for k, d in enumerate(inputs["drives"], start=1):
         rows.append({"drive": f"D{k}", "from m": None, "to m": None, "VL %": d["volume_loss_pct"],
@@ -362,7 +372,12 @@ def _inputs_blocks(run: RunOutputs, inputs: dict | None) -> list[Block]:
                          "VL %": r["volume_loss_pct"], "K": r["trough_width_k"], "key": f"{d['key']} {r['key']}"})
     b.append(Block("mono", lines=table_lines([("drive", 5, None), ("from m", 8, ".1f"), ("to m", 8, ".1f"),
                                               ("VL %", 6, ".2f"), ("K", 5, ".2f"), ("key", 60, None)], rows)))
-    b.append(Block("subheading", "1.3 Ground and water"))
+    return b
+
+
+def _ground_blocks(inputs: dict) -> list[Block]:
+    """1.3: the ground surface, the groundwater level, the ground layers and their parameters, and the rivers."""
+    b = [Block("subheading", "1.3 Ground and water")]
     g = inputs["ground"]
     surf = g["surface"]
     b.append(Block("text", ("Ground surface: flat at {:.2f} m ({}).".format(surf["level_m"], surf["key"])
@@ -390,7 +405,12 @@ def _inputs_blocks(run: RunOutputs, inputs: dict | None) -> list[Block]:
         b.append(Block("mono", lines=table_lines(
             [("key", 13, None), ("name", 16, None), ("drive", 30, None), ("from m", 8, ".1f"), ("to m", 8, ".1f"),
              ("bed m", 7, ".2f"), ("water m", 7, ".2f")], rows)))
-    b.append(Block("subheading", "1.4 Settings and other inputs"))
+    return b
+
+
+def _settings_blocks(inputs: dict) -> list[Block]:
+    """1.4: the output settings, the files read, the face-support reaches and the face options as used."""
+    b = [Block("subheading", "1.4 Settings and other inputs")]
     o = inputs["output"]
     lines = [f"[output] grid_spacing_m = {o['grid_spacing_m']:g}; contour_levels_mm = "
              f"{', '.join(f'{v:g}' for v in o['contour_levels_mm'])}; grid_threshold_mm = "
@@ -520,11 +540,30 @@ def _results_blocks(run: RunOutputs, figure_paths: list[tuple[Path, str]]) -> li
     return b
 
 
-def _building_blocks(run: RunOutputs) -> list[Block]:
-    b = [Block("subheading", "3.3 Buildings in damage category 2 and above")]
-    layer = run.frames.get("buildings")
+def _subsection_layer(run: RunOutputs, heading: str, name: str, not_assessed: str):
+    """A results subsection's heading and the run's layer `name`; with no such layer, the heading and the line
+    saying it was not assessed, and None for the layer."""
+    b = [Block("subheading", heading)]
+    layer = run.frames.get(name)
     if layer is None:
-        return b + [Block("text", "Buildings: not assessed (the run has no buildings layer).")]
+        return b + [Block("text", not_assessed)], None
+    return b, layer
+
+
+def _listed(rows, none_text: str, intro: str, mapping: dict, cols: list, note: str) -> list[Block]:
+    """The rows to report as a table between its intro line and its note; one line saying there are none when the
+    rows are empty."""
+    if rows.empty:
+        return [Block("text", none_text)]
+    return [Block("text", intro), Block("mono", lines=table_lines(cols, _records(rows, mapping))),
+            Block("text", note)]
+
+
+def _building_blocks(run: RunOutputs) -> list[Block]:
+    b, layer = _subsection_layer(run, "3.3 Buildings in damage category 2 and above", "buildings",
+                                 "Buildings: not assessed (the run has no buildings layer).")
+    if layer is None:
+        return b
     cat = figures.building_categories(layer)
     ranges = figures.category_ranges()
     counts = [f"cat. {c} {word}: {int(np.sum(cat == c))}" for c, word, _ in ranges]
@@ -534,28 +573,25 @@ def _building_blocks(run: RunOutputs) -> list[Block]:
         text += f" {screened} cleared at stage 1 (screening) and counted in category 0."
     b.append(Block("text", text))
     rows = buildings_to_report(layer)
-    if rows.empty:
-        return b + [Block("text", "No building is in damage category 2 or above.")]
-    b.append(Block("text", f"{len(rows)} building(s) in category 2 or above, worst first:"))
-    recs = _records(rows, {"id": "id", "cat": "category", "degree": "category_label",
-                           "settl mm": "max_settlement_mm", "tilt": lambda r: _one_in(r.get("max_tilt")),
-                           "strain %": "tensile_strain_pct", "defl ratio": "deflection_ratio",
-                           "hor strain %": "horizontal_strain_pct",
-                           "wall": lambda r: f"{_num(r.get('governing_wall'), '.0f')} {r.get('governing_mode') or ''}"})
+    mapping = {"id": "id", "cat": "category", "degree": "category_label",
+               "settl mm": "max_settlement_mm", "tilt": lambda r: _one_in(r.get("max_tilt")),
+               "strain %": "tensile_strain_pct", "defl ratio": "deflection_ratio",
+               "hor strain %": "horizontal_strain_pct",
+               "wall": lambda r: f"{_num(r.get('governing_wall'), '.0f')} {r.get('governing_mode') or ''}"}
     cols = [("id", 22, None), ("cat", 3, ".0f"), ("degree", 21, None), ("settl mm", 8, ".1f"), ("tilt", 8, None),
             ("strain %", 8, ".3f"), ("defl ratio", 10, ".2e"), ("hor strain %", 12, ".3f"), ("wall", 12, None)]
-    b.append(Block("mono", lines=table_lines(cols, recs)))
-    b.append(Block("text", "strain %: limiting tensile strain of the governing wall; defl ratio: its deflection ratio "
-                           "Delta/L; hor strain %: its average horizontal strain (tensile positive); wall: the "
-                           "governing wall and whether it sags or hogs. Category 3 and above: detailed assessment."))
-    return b
+    return b + _listed(rows, "No building is in damage category 2 or above.",
+                       f"{len(rows)} building(s) in category 2 or above, worst first:", mapping, cols,
+                       "strain %: limiting tensile strain of the governing wall; defl ratio: its deflection ratio "
+                       "Delta/L; hor strain %: its average horizontal strain (tensile positive); wall: the "
+                       "governing wall and whether it sags or hogs. Category 3 and above: detailed assessment.")
 
 
 def _utility_blocks(run: RunOutputs) -> list[Block]:
-    b = [Block("subheading", "3.4 Utilities near or over their limits")]
-    layer = run.frames.get("utilities")
+    b, layer = _subsection_layer(run, "3.4 Utilities near or over their limits", "utilities",
+                                 "Utilities: not assessed (the run has no utilities layer).")
     if layer is None:
-        return b + [Block("text", "Utilities: not assessed (the run has no utilities layer).")]
+        return b
     from settle.assessments.utilities import STATUSES
 
     counts = layer["status"].value_counts()
@@ -566,60 +602,58 @@ def _utility_blocks(run: RunOutputs) -> list[Block]:
         b.append(Block("text", "Crossing the tunnel (no numbers; to be resolved with the asset owner): "
                        + ", ".join(map(str, crossing["id"])) + "."))
     rows = utilities_to_report(layer)
-    if rows.empty:
-        return b + [Block("text", "No pipe is near or over its limits.")]
-    b.append(Block("text", f"{len(rows)} pipe(s) near or over their limits, highest utilisation first:"))
-    recs = _records(rows, {"id": "id", "material": "material", "status": "status", "governs": "governing_check",
-                           "util": "utilisation", "at m": "governing_chainage_m", "bend ue": "max_bending_strain_ue",
-                           "axial+ ue": "max_axial_strain_ue", "axial- ue": "min_axial_strain_ue",
-                           "rot deg": "max_joint_rotation_deg", "open mm": "max_joint_opening_mm"})
+    mapping = {"id": "id", "material": "material", "status": "status", "governs": "governing_check",
+               "util": "utilisation", "at m": "governing_chainage_m", "bend ue": "max_bending_strain_ue",
+               "axial+ ue": "max_axial_strain_ue", "axial- ue": "min_axial_strain_ue",
+               "rot deg": "max_joint_rotation_deg", "open mm": "max_joint_opening_mm"}
     cols = [("id", 14, None), ("material", 14, None), ("status", 11, None), ("governs", 14, None),
             ("util", 5, ".2f"), ("at m", 6, ".1f"), ("bend ue", 7, ".0f"), ("axial+ ue", 9, ".0f"),
             ("axial- ue", 9, ".0f"), ("rot deg", 7, ".3f"), ("open mm", 7, ".2f")]
-    b.append(Block("mono", lines=table_lines(cols, recs)))
-    b.append(Block("text", "util: the largest demand over its allowable value; at m: where along the pipe; ue: "
-                           "microstrain (axial tensile positive); rot, open: joint rotation and opening over one pipe "
-                           "length. Near-limit and exceeding pipes go to the asset owner for assessment."))
-    return b
+    return b + _listed(rows, "No pipe is near or over its limits.",
+                       f"{len(rows)} pipe(s) near or over their limits, highest utilisation first:", mapping, cols,
+                       "util: the largest demand over its allowable value; at m: where along the pipe; ue: "
+                       "microstrain (axial tensile positive); rot, open: joint rotation and opening over one pipe "
+                       "length. Near-limit and exceeding pipes go to the asset owner for assessment.")
+
+
+def _face_counts_block(k: int, st) -> Block:
+    """The line on the face stations of drive Dk: how many of each status, the smallest window [kPa] and where [m],
+    and how many have low cover."""
+    if st.empty:
+        return Block("text", f"D{k}: no face stations.")
+    counts = st["status"].value_counts()
+    worst = st.iloc[int(np.argmin(st["window_kpa"].to_numpy(float)))]
+    low = int(st["low_cover"].fillna(False).astype(bool).sum()) if "low_cover" in st else 0
+    n = {word: int(counts.get(word, 0)) for word in ("open", "narrow", "closed")}
+    return Block("text", f"D{k}: {len(st)} stations: open {n['open']}, narrow {n['narrow']}, closed "
+                         f"{n['closed']}; smallest window {worst['window_kpa']:.1f} kPa at "
+                         f"{worst['chainage_m']:.1f} m; {low} with low cover.")
 
 
 def _face_blocks(run: RunOutputs) -> list[Block]:
-    b = [Block("subheading", "3.5 Face stations with a narrow or closed window")]
-    layer = run.frames.get("face_stations")
+    b, layer = _subsection_layer(run, "3.5 Face stations with a narrow or closed window", "face_stations",
+                                 "Face support window: not assessed (the run has no face_stations layer; the check "
+                                 "runs when every ground layer carries its strength).")
     if layer is None:
-        return b + [Block("text", "Face support window: not assessed (the run has no face_stations layer; the check "
-                                  "runs when every ground layer carries its strength).")]
+        return b
     route = run.frames["route"]
     for k, r in enumerate(route.itertuples(index=False), start=1):
-        st = layer[layer["drive"] == r.drive]
-        if st.empty:
-            b.append(Block("text", f"D{k}: no face stations."))
-            continue
-        counts = st["status"].value_counts()
-        worst = st.iloc[int(np.argmin(st["window_kpa"].to_numpy(float)))]
-        low = int(st["low_cover"].fillna(False).astype(bool).sum()) if "low_cover" in st else 0
-        n = {word: int(counts.get(word, 0)) for word in ("open", "narrow", "closed")}
-        b.append(Block("text", f"D{k}: {len(st)} stations: open {n['open']}, narrow {n['narrow']}, closed "
-                               f"{n['closed']}; smallest window {worst['window_kpa']:.1f} kPa at "
-                               f"{worst['chainage_m']:.1f} m; {low} with low cover."))
+        b.append(_face_counts_block(k, layer[layer["drive"] == r.drive]))
     rows = face_stations_to_report(layer)
-    if rows.empty:
-        return b + [Block("text", "No face station has a narrow or closed window.")]
     index = {d: f"D{k}" for k, d in enumerate(route["drive"], start=1)}
-    recs = _records(rows, {"drive": lambda r: index.get(r["drive"], r["drive"]), "ch m": "chainage_m",
-                           "cover m": "cover_m", "water kPa": "water_pressure_kpa", "min kPa": "support_min_kpa",
-                           "max kPa": "support_max_kpa", "window kPa": "window_kpa", "status": "status",
-                           "mode": "support_mode", "low cover": lambda r: "yes" if r.get("low_cover") else "no",
-                           "river": lambda r: "yes" if r.get("in_river") else "no", "max by": "max_limited_by"})
+    mapping = {"drive": lambda r: index.get(r["drive"], r["drive"]), "ch m": "chainage_m",
+               "cover m": "cover_m", "water kPa": "water_pressure_kpa", "min kPa": "support_min_kpa",
+               "max kPa": "support_max_kpa", "window kPa": "window_kpa", "status": "status",
+               "mode": "support_mode", "low cover": lambda r: "yes" if r.get("low_cover") else "no",
+               "river": lambda r: "yes" if r.get("in_river") else "no", "max by": "max_limited_by"}
     cols = [("drive", 5, None), ("ch m", 7, ".1f"), ("cover m", 7, ".2f"), ("water kPa", 9, ".1f"),
             ("min kPa", 7, ".1f"), ("max kPa", 7, ".1f"), ("window kPa", 10, ".1f"), ("status", 6, None),
             ("mode", 11, None), ("low cover", 9, None), ("river", 5, None), ("max by", 12, None)]
-    b.append(Block("text", f"{len(rows)} station(s) with a narrow or closed window:"))
-    b.append(Block("mono", lines=table_lines(cols, recs)))
-    b.append(Block("text", "Pressures at the crown; window: maximum less minimum less twice the operating tolerance. "
-                           "These are planning bounds: the operating pressures are set and reviewed by the "
-                           "responsible engineer, under local codes."))
-    return b
+    return b + _listed(rows, "No face station has a narrow or closed window.",
+                       f"{len(rows)} station(s) with a narrow or closed window:", mapping, cols,
+                       "Pressures at the crown; window: maximum less minimum less twice the operating tolerance. "
+                       "These are planning bounds: the operating pressures are set and reviewed by the "
+                       "responsible engineer, under local codes.")
 
 
 CAUTIONS = (
@@ -886,7 +920,7 @@ def write_report(out_dir, stem: str, run_date=None, project=None, sections_chain
             rc.update({"font.sans-serif": ["Helvetica"], "font.monospace": ["Courier"]})
         else:
             rc.update({"font.sans-serif": ["DejaVu Sans"], "font.monospace": ["DejaVu Sans Mono"]})
-        from settle import __version__
+        from settle.version import __version__
 
         metadata = {"Title": f"{run.summary.get('project', stem)}: ground movement assessment",
                     "Subject": f"run of {date.isoformat()}", "Creator": f"settle {__version__}",
