@@ -9,8 +9,7 @@ Results are planning estimates: they support, and do not replace, the judgement 
 codes.
 """
 from .errors import InputError
-
-__version__ = "0.1.0"
+from .version import __version__
 
 
 def load_project(path):

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import __version__
+from ..version import __version__
 from .results import Movements, Result
 
 CAUTION = (
