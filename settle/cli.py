@@ -10,7 +10,7 @@ import sys
 import textwrap
 from pathlib import Path
 
-from . import __version__
+from .version import __version__
 from .errors import InputError
 from .procedure.summary import CAUTION
 
@@ -50,23 +50,32 @@ def _parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"settle {__version__}")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
-    run = commands.add_parser(
-        "run",
-        help="compute greenfield movements for a project and write the GeoPackage and summary",
-        description=_paragraphs(
-            "Compute greenfield ground movements along every drive of PROJECT (a TOML project file), and the "
-            "building damage, utility and face support checks the project asks for, and write "
-            "DIR/<project file stem>.gpkg (layers route, route_reaches, route_profile, grid, settlement_bands, "
-            "settlement_lines, points, and buildings, building_walls, utilities, utility_critical_points, "
-            "face_stations, readings when computed, each with a default style), DIR/summary.json, the CSV tables "
-            "and figures. Outputs are written to temporary files and moved into place, so a failed run never "
-            "damages the result of an earlier one.",
-            CAUTION,
-        ),
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    run.add_argument("project", metavar="PROJECT.toml", help="the project file")
-    run.add_argument("--out", metavar="DIR", required=True, help="folder for the outputs (created if missing)")
+    _add_run(commands)
+    _add_report(commands)
+    _add_fit(commands)
+    return parser
+
+
+def _command(commands, name: str, summary: str, description: str, project_help: str,
+             out_help: str) -> argparse.ArgumentParser:
+    """A command with its one-line help, its description followed by the caution, PROJECT.toml and --out DIR."""
+    command = commands.add_parser(name, help=summary, description=_paragraphs(description, CAUTION),
+                                  formatter_class=argparse.RawDescriptionHelpFormatter)
+    command.add_argument("project", metavar="PROJECT.toml", help=project_help)
+    command.add_argument("--out", metavar="DIR", required=True, help=out_help)
+    return command
+
+
+def _add_run(commands) -> None:
+    run = _command(
+        commands, "run", "compute greenfield movements for a project and write the GeoPackage and summary",
+        "Compute greenfield ground movements along every drive of PROJECT (a TOML project file), and the "
+        "building damage, utility and face support checks the project asks for, and write "
+        "DIR/<project file stem>.gpkg (layers route, route_reaches, route_profile, grid, settlement_bands, "
+        "settlement_lines, points, and buildings, building_walls, utilities, utility_critical_points, "
+        "face_stations, readings when computed, each with a default style), DIR/summary.json, the CSV tables "
+        "and figures. Outputs are written to temporary files and moved into place, so a failed run never "
+        "damages the result of an earlier one.", "the project file", "folder for the outputs (created if missing)")
     run.add_argument("--quiet", action="store_true", help="print nothing but errors")
     run.add_argument("--report", action="store_true",
                      help="also write DIR/<stem>-report.pdf, the assessment report (as `settle report` does)")
@@ -75,42 +84,32 @@ def _parser() -> argparse.ArgumentParser:
                           "trigger status against [monitoring] amber_mm and red_mm) and a figure per monitored "
                           "cross-section")
 
-    report = commands.add_parser(
-        "report",
-        help="write the PDF assessment report of a finished run, without recomputing",
-        description=_paragraphs(
-            "Write DIR/<stem>-report.pdf from the outputs a finished `settle run PROJECT.toml --out DIR` left in "
-            "DIR (GeoPackage and summary.json), with the inputs read from PROJECT.toml: title block, inputs and "
-            "where they came from, methods with their references, results with figures and tables, assumptions and "
-            "the cautions of the trade. Nothing is recomputed.",
-            CAUTION,
-        ),
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    report.add_argument("project", metavar="PROJECT.toml", help="the project file the run was made from")
-    report.add_argument("--out", metavar="DIR", required=True, help="the run's output folder")
+
+def _add_report(commands) -> None:
+    report = _command(
+        commands, "report", "write the PDF assessment report of a finished run, without recomputing",
+        "Write DIR/<stem>-report.pdf from the outputs a finished `settle run PROJECT.toml --out DIR` left in "
+        "DIR (GeoPackage and summary.json), with the inputs read from PROJECT.toml: title block, inputs and "
+        "where they came from, methods with their references, results with figures and tables, assumptions and "
+        "the cautions of the trade. Nothing is recomputed.", "the project file the run was made from",
+        "the run's output folder")
     report.add_argument("--date", metavar="YYYY-MM-DD",
                         help="the date printed in the report (default: the date the run wrote its GeoPackage)")
 
-    fit = commands.add_parser(
-        "fit",
-        help="back-analyse volume loss and trough width from monitoring readings",
-        description=_paragraphs(
-            "Back-analyse the volume loss and trough width factor K that the monitoring readings show, per drive "
-            "(or per reach), against the same three-dimensional model `settle run` uses, with each reading's face "
-            "position. Writes DIR/fit.json (values, standard errors, readings used, residual RMS, outliers), "
-            "DIR/<stem>-fitted.toml (the project with the fitted values, which `settle run` accepts unchanged) "
-            "and, when the project has buildings or utilities, DIR/forecast.csv: what lies ahead of the face, "
-            "assessed again with the fitted values, marked where its category or status changed.",
-            CAUTION,
-        ),
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    fit.add_argument("project", metavar="PROJECT.toml", help="the project file")
+
+def _add_fit(commands) -> None:
+    fit = _command(
+        commands, "fit", "back-analyse volume loss and trough width from monitoring readings",
+        "Back-analyse the volume loss and trough width factor K that the monitoring readings show, per drive "
+        "(or per reach), against the same three-dimensional model `settle run` uses, with each reading's face "
+        "position. Writes DIR/fit.json (values, standard errors, readings used, residual RMS, outliers), "
+        "DIR/<stem>-fitted.toml (the project with the fitted values, which `settle run` accepts unchanged) "
+        "and, when the project has buildings or utilities, DIR/forecast.csv: what lies ahead of the face, "
+        "assessed again with the fitted values, marked where its category or status changed.", "the project file",
+        "folder for the outputs (created if missing)")
     fit.add_argument("readings", metavar="READINGS.csv",
                      help="readings: point_id, date (ISO 8601), settlement_mm, face_chainage_m, and x, y, depth_m "
                           "or the [points] of the project; a drive column when there are several drives")
-    fit.add_argument("--out", metavar="DIR", required=True, help="folder for the outputs (created if missing)")
     fit.add_argument("--per-reach", action="store_true", help="fit each reach of a drive on its own")
     fit.add_argument("--outlier-limit", type=float, default=3.0, metavar="SIGMA",
                      help="a reading further than this many robust standard deviations from the fit is an outlier "
@@ -118,7 +117,6 @@ def _parser() -> argparse.ArgumentParser:
     fit.add_argument("--min-face-past-m", type=float, default=None, metavar="M",
                      help="fit only readings taken with the face at least this far past the point (default: all)")
     fit.add_argument("--quiet", action="store_true", help="print nothing but errors")
-    return parser
 
 
 def _run(args) -> int:

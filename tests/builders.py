@@ -1,9 +1,14 @@
-"""Small projects built in code for the engine tests (no files)."""
+"""Small projects built in code for the engine tests (no files), and the demo site run as a user runs it."""
+import subprocess
+import sys
+from pathlib import Path
+
 import numpy as np
 
 from settle.inputs.model import Drive, Ground, Layer, Output, Points, Project, Surface
 
 CLAY = Layer("clay", 10.0, 19.0, 0.5, "cohesive")
+DEMO = Path(__file__).resolve().parent.parent / "demo_site"
 
 
 def ground(level=10.0, layers=(CLAY,)):
@@ -36,3 +41,10 @@ def arc(radius, angle_deg, n, start=(0.0, 0.0), heading_deg=0.0):
     a = np.linspace(0.0, np.radians(angle_deg), n)
     cx, cy = start[0] - radius * np.sin(h0), start[1] + radius * np.cos(h0)
     return np.column_stack([cx + radius * np.sin(h0 + a), cy - radius * np.cos(h0 + a)])
+
+
+def run_demo(out) -> None:
+    """`settle run` on the demo site through the command line, quietly, into `out`; fails the test if it fails."""
+    done = subprocess.run([sys.executable, "-m", "settle", "run", DEMO / "ostrey.toml", "--out", out, "--quiet"],
+                          capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr

@@ -309,7 +309,8 @@ def test_report_from_a_finished_run_without_recomputing(demo_run, tmp_path, monk
     _, good = demo_run
     out = tmp_path / "out"
     shutil.copytree(good, out)
-    monkeypatch.setattr(settle.procedure.orchestrator, "run", lambda *a, **k: pytest.fail("the report recomputed the run"))
+    monkeypatch.setattr(settle.procedure.orchestrator, "run",
+                        lambda *a, **k: pytest.fail("the report recomputed the run"))
     from settle.cli import main
 
     assert main(["report", str(DEMO / "ostrey.toml"), "--out", str(out), "--date", "2026-12-01"]) == 0

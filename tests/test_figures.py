@@ -1,7 +1,5 @@
 """Figures from finished runs: not blank, drawn from the outputs, sampled where they claim, errors for people."""
 import json
-import subprocess
-import sys
 from pathlib import Path
 
 import matplotlib
@@ -46,9 +44,7 @@ def assert_not_blank(png):
 def demo(tmp_path_factory):
     """The demo site run through the command line, as a user would."""
     out = tmp_path_factory.mktemp("figures_demo")
-    done = subprocess.run([sys.executable, "-m", "settle", "run", DEMO / "ostrey.toml", "--out", out, "--quiet"],
-                          capture_output=True, text=True)
-    assert done.returncode == 0, done.stderr
+    builders.run_demo(out)
     gpkg = out / "ostrey.gpkg"
     return gpkg, json.loads((out / "summary.json").read_text()), out
 

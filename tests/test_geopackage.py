@@ -198,21 +198,23 @@ def test_empty_layers_keep_their_schema(tmp_path):
 
 
 # --- the checker catches what it should ---------------------------------------------------------------------------
-def test_checker_catches_a_wrong_application_id(written, tmp_path):
+def broken_copy(written, tmp_path, sql: str):
+    """A copy of the written GeoPackage with one SQL statement run on it."""
     copy = tmp_path / "copy.gpkg"
     shutil.copy(written[1], copy)
     with contextlib.closing(sqlite3.connect(copy)) as con:
-        con.execute("PRAGMA application_id = 0")
+        con.execute(sql)
         con.commit()
+    return copy
+
+
+def test_checker_catches_a_wrong_application_id(written, tmp_path):
+    copy = broken_copy(written, tmp_path, "PRAGMA application_id = 0")
     assert any(p.startswith("R2:") for p in problems(copy))
 
 
 def test_checker_catches_a_missing_geometry_columns_row(written, tmp_path):
-    copy = tmp_path / "copy.gpkg"
-    shutil.copy(written[1], copy)
-    with contextlib.closing(sqlite3.connect(copy)) as con:
-        con.execute("DELETE FROM gpkg_geometry_columns WHERE table_name = 'grid'")
-        con.commit()
+    copy = broken_copy(written, tmp_path, "DELETE FROM gpkg_geometry_columns WHERE table_name = 'grid'")
     assert any(p.startswith("R22:") and "'grid'" in p for p in problems(copy))
 
 

@@ -430,14 +430,20 @@ def _alignment(table: dict, where: str, folder: Path, crs: str) -> Alignment:
                      f"got {shown(table['alignment'])}")
 
 
+def _drive_items(drive: dict, key: str, allowed, where: str):
+    """(number, table, label) for each item of a drive's [[drives.<key>]] in turn, its keys checked; none if absent."""
+    if key not in drive:
+        return
+    for i, table in enumerate(_tables(drive, key, f"drives.{key}", where), start=1):
+        at = f"{where} [[drives.{key}]] #{i}"
+        _check_keys(table, allowed, at)
+        yield i, table, at
+
+
 def _reaches(drive: dict, where: str) -> tuple[Reach, ...]:
     """The drive's [[drives.reaches]], sorted by from_chainage_m; overlapping reaches are an error naming both."""
-    if "reaches" not in drive:
-        return ()
     items = []
-    for i, table in enumerate(_tables(drive, "reaches", "drives.reaches", where), start=1):
-        at = f"{where} [[drives.reaches]] #{i}"
-        _check_keys(table, REACH_KEYS, at)
+    for i, table, at in _drive_items(drive, "reaches", REACH_KEYS, where):
         start = _number(table, "from_chainage_m", at)
         reach = Reach(from_chainage_m=start, to_chainage_m=_number(table, "to_chainage_m", at, gt=start),
                       volume_loss_pct=_number(table, "volume_loss_pct", at, **VOLUME_LOSS_RANGE),
@@ -502,9 +508,7 @@ def _face_support(drive: dict, where: str, name: str) -> tuple[SupportReach, ...
     if "face_support" not in drive:
         return ()
     reaches = []
-    for i, table in enumerate(_tables(drive, "face_support", "drives.face_support", where), start=1):
-        at = f"{where} [[drives.face_support]] #{i}"
-        _check_keys(table, SUPPORT_KEYS, at)
+    for _, table, at in _drive_items(drive, "face_support", SUPPORT_KEYS, where):
         reaches.append(SupportReach(from_chainage_m=_number(table, "from_chainage_m", at),
                                     to_chainage_m=_number(table, "to_chainage_m", at),
                                     mode=_text(table, "mode", at, choices=SUPPORT_MODES)))

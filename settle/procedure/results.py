@@ -1,14 +1,9 @@
-"""What a run returns: plain arrays with units in every name.
+"""What a run returns: `Result`, plain arrays with units in every name.
 
-Sign conventions, kept throughout the project:
-- settlement positive downward;
-- horizontal displacement `ux_mm` east (+x), `uy_mm` north (+y) of the project CRS;
-- horizontal strain tensile positive, in microstrain (1e-6); the tensor is the symmetric small-strain tensor
-  (`strain_xy_ue` is the tensor component, half the engineering shear strain);
-- slope (tilt) is the magnitude of the gradient of settlement, dimensionless (1/500 = 0.002).
-
-`Movements` and `SettlementTiles` come from the engine (`settle.engine.movements`) and `DriveResult` from the route
-(`settle.inputs.route`); they are named here too, as the types a `Result` holds.
+Sign conventions: those stated once in `settle.engine.movements` (settlement positive downward, ux east and uy north,
+strain tensile positive in microstrain, tilt as the slope's magnitude). `Movements` and `SettlementTiles` come from
+the engine (`settle.engine.movements`) and `DriveResult` from the route (`settle.inputs.route`); they are named here
+too, as the types a `Result` holds.
 """
 from __future__ import annotations
 

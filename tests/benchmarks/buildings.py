@@ -4,10 +4,10 @@
 
 Prints the time of the building assessment (stage 1 and stage 2, walls, sampling, parts) with two greenfield
 callables: the closed form of a straight drive (so the time is the assessment's own), and the engine's
-`settle.engine.field.movements_at_points` on the same drive built by `settle.assessment.Assessment`. Then, for a sample of
-CURVED_SAMPLE buildings along the 2 km curved drive of `tests.benchmarks.long_drive`, the time with the engine's
-callable, and the same scaled to 20,000 buildings: `movements_at_points` evaluates every tunnel element at every
-point, so there the callable, not the assessment, sets the time.
+`settle.engine.field.movements_at_points` on the same drive built by `settle.assessment.Assessment`. Then, for a
+sample of CURVED_SAMPLE buildings along the 2 km curved drive of `tests.benchmarks.long_drive`, the time with the
+engine's callable, and the same scaled to 20,000 buildings: `movements_at_points` evaluates every tunnel element at
+every point, so there the callable, not the assessment, sets the time.
 """
 from __future__ import annotations
 
