@@ -18,9 +18,9 @@ from hypothesis import strategies as st
 
 from settle.errors import InputError
 from settle.monitoring.fitted_file import fitted_project_toml
-from settle.monitoring.fitting import (STATUS_AMBER, STATUS_CLEAR, STATUS_RED, FitResult, apply_fits, back_analysis, comparison,
-                            fit_report, point_chainage_m, predicted_settlement_mm,
-                            trigger_status)
+from settle.monitoring.fitting import (STATUS_AMBER, STATUS_CLEAR, STATUS_RED, FitResult, apply_fits, back_analysis,
+                                       comparison, fit_report, point_chainage_m, predicted_settlement_mm,
+                                       trigger_status)
 from settle.engine.troughs import excavated_area
 from settle.inputs.model import Reach
 from settle.inputs.project_file import load_project

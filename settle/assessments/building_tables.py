@@ -2,6 +2,8 @@
 buildings.csv and the counts of summary.json."""
 from __future__ import annotations
 
+import datetime
+
 import numpy as np
 import pandas as pd
 import shapely
@@ -33,17 +35,35 @@ def _nullable(values, missing) -> pd.api.extensions.ExtensionArray:
 def _input_columns(buildings: Buildings) -> dict:
     """The input attributes to carry. An attribute an output field was read from under the same name (e.g. the
     input height_m) gives way to that field, which holds the value used; any other input name that an output field
-    uses, in any letter case, is renamed "input_<name>"."""
+    or an input attribute before it uses, in any letter case (a GeoPackage cannot hold "use" and "USE"), is renamed
+    "input_<name>" until it is unique. Dates and times are carried as ISO 8601 text."""
     ours = {f.lower() for f in BUILDING_FIELDS} | {"geometry", "geom", "fid", "x_m", "y_m"}
     out = {}
     for name in buildings.attributes.columns:
         key = str(name)
         if buildings.sources.get(key) == key:
             continue
-        while key.lower() in ours or key in out:
+        while key.lower() in ours:
             key = f"input_{key}"
-        out[key] = buildings.attributes[name].to_numpy()
+        ours.add(key.lower())
+        out[key] = _carried(buildings.attributes[name])
     return out
+
+
+def _carried(column: pd.Series) -> np.ndarray:
+    """An input attribute's values as carried: dates, date-times and times as ISO 8601 text (a date-time at
+    midnight without a zone as its date alone), NULL kept as None; any other values as read."""
+    if pd.api.types.is_datetime64_any_dtype(column):
+        moments = column.dropna()
+        date_only = column.dt.tz is None and bool((moments == moments.dt.normalize()).all())
+        return np.array([None if pd.isna(v) else v.date().isoformat() if date_only else v.isoformat()
+                         for v in column], dtype=object)
+    values = column.to_numpy()
+    if values.dtype == object:
+        timed = [isinstance(v, (datetime.date, datetime.time)) for v in values]
+        if any(timed):
+            return np.array([v.isoformat() if t else v for v, t in zip(values, timed)], dtype=object)
+    return values
 
 
 def building_columns(buildings: Buildings, results: BuildingResults) -> dict:

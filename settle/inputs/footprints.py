@@ -16,12 +16,16 @@ Input
                         numbers at least 0, optional: relative-stiffness modification factors read by the user from
                         the published design charts (see `settle.buildings`); used only when the correction is on.
 
+    Heights and foundation depths are at most `DEPTH_LIMIT_M` (1000 m).
+
     An attribute that is absent, NULL or empty takes the project-level default when one is given, and is otherwise
     an InputError naming the building and the field. A value that is there but wrong (text that is not a number, a
     negative height, an unknown structure type) is always an InputError: a default never replaces a wrong value.
 
 Geometry
-    Empty or missing geometries and features that are not polygons are skipped; invalid polygons (self-intersecting,
+    Every vertex must be finite and within +/-`COORDINATE_LIMIT_M` in the project CRS, and a footprint must span no
+    more than `FOOTPRINT_EXTENT_LIMIT_M` in plan: otherwise an InputError naming the building. Empty or missing
+    geometries and features that are not polygons are skipped; invalid polygons (self-intersecting,
     ...) are repaired with `shapely.make_valid` and their polygonal part kept, or skipped when none is left. Both are
     reported by id with the reason (`Buildings.skipped`, `Buildings.repaired`, `Buildings.notes()`).
     A MultiPolygon of several parts stays one building: its walls are the edges of all its parts, and the worst wall
@@ -44,7 +48,8 @@ import pyproj
 import shapely
 
 from ..errors import InputError
-from .tables import GIS_SUFFIXES, listing, project_transformer, read_gis_layer, shown
+from .tables import (COORDINATE_LIMIT_M, DEPTH_LIMIT_M, GIS_SUFFIXES, check_coordinates, listing,
+                     project_transformer, read_gis_layer, shown, within)
 
 #: E/G for each structure type, used when the project file gives no table of its own.
 #: masonry 2.6: Burland & Wroth (1974) for masonry bearing walls (methods.md section 5.1, from memory there); it is
@@ -61,6 +66,9 @@ COLLINEAR_TOLERANCE_DEG = 2.0
 STRAIGHTNESS_TOLERANCE_M = 0.1
 #: Vertices closer than this to the next one are the same vertex. [m]
 DUPLICATE_TOLERANCE_M = 0.001
+#: Largest plan extent (width or depth of its bounding box) of one footprint (our choice: twice the longest buildings
+#: standing; a larger one is a layer in the wrong CRS or units, and would fill memory with interior points). [m]
+FOOTPRINT_EXTENT_LIMIT_M = 2000.0
 
 _POLYGON, _MULTIPOLYGON, _COLLECTION = 3, 6, 7  # shapely type ids
 
@@ -146,6 +154,8 @@ def read_buildings(path, project_crs: str, defaults: BuildingDefaults | None = N
     geoms = np.asarray(frame.geometry.values, dtype=object)
     transformer, notes = project_transformer(frame.crs, project_crs, source)
     if transformer is not None:
+        _check_vertices(geoms, [f"feature {j}" for j in range(1, len(geoms) + 1)], source)
+
         def move(xy):
             x, y = transformer.transform(xy[:, 0], xy[:, 1])
             return np.column_stack([x, y])
@@ -156,12 +166,13 @@ def read_buildings(path, project_crs: str, defaults: BuildingDefaults | None = N
             raise InputError(f"{source}: cannot be transformed from the layer's CRS ({frame.crs.to_string()}) "
                              f"to the project CRS {project_crs}: {exc}") from None
     attributes = pd.DataFrame(frame.drop(columns=frame.geometry.name))
-    return buildings_from_table(geoms, attributes, defaults, source, key_prefix, notes)
+    return buildings_from_table(geoms, attributes, defaults, source, key_prefix, notes,
+                                transformed=transformer is not None)
 
 
 def buildings_from_table(geometries, attributes: pd.DataFrame, defaults: BuildingDefaults | None = None,
                          source: str = "buildings", key_prefix: str = "[buildings]",
-                         warnings: list[str] | None = None) -> Buildings:
+                         warnings: list[str] | None = None, transformed: bool = False) -> Buildings:
     """Buildings from footprints already in the project CRS and a table of their attributes (one row each).
 
     `read_buildings` reads a file and calls this; tests and notebooks can call it with shapely polygons and a
@@ -173,6 +184,7 @@ def buildings_from_table(geometries, attributes: pd.DataFrame, defaults: Buildin
     if len(attributes) != len(geoms):
         raise ValueError(f"{len(geoms)} geometries but {len(attributes)} attribute rows")
     labels = _ids(attributes, defaults, source, key_prefix)
+    _check_footprint_places(geoms, labels, source, transformed)
 
     keep, polygons, skipped, repaired = _usable_polygons(geoms, labels, source)
     k = np.flatnonzero(keep)
@@ -180,9 +192,9 @@ def buildings_from_table(geometries, attributes: pd.DataFrame, defaults: Buildin
     ids = tuple(labels[j] for j in k)
     used = [[] for _ in k]
     height = _numbers(table, ids, defaults.height_attribute, defaults.default_height_m, "default_height_m",
-                      source, key_prefix, used, gt=0.0)
+                      source, key_prefix, used, gt=0.0, le=DEPTH_LIMIT_M)
     depth = _numbers(table, ids, defaults.foundation_depth_attribute, defaults.default_foundation_depth_m,
-                     "default_foundation_depth_m", source, key_prefix, used, ge=0.0)
+                     "default_foundation_depth_m", source, key_prefix, used, ge=0.0, le=DEPTH_LIMIT_M)
     structure, e_over_g = _structures(table, ids, defaults, source, key_prefix, used)
     modification = {}
     for name in MODIFICATION_ATTRIBUTES:
@@ -213,6 +225,30 @@ def _ids(table: pd.DataFrame, defaults: BuildingDefaults, source: str, key_prefi
         seen[text] = row
         ids.append(text)
     return ids
+
+
+def _check_vertices(geoms: np.ndarray, names: list[str], source: str, transformed: bool = False) -> None:
+    """An InputError naming the first feature (`names`, one per geometry) with a vertex that is not finite or lies
+    beyond +/-`COORDINATE_LIMIT_M`. [m]"""
+    xy, owner = shapely.get_coordinates(geoms, return_index=True)
+    bad = ~within(xy, ge=-COORDINATE_LIMIT_M, le=COORDINATE_LIMIT_M).all(axis=1)
+    if bad.any():
+        k = int(np.argmax(bad))
+        check_coordinates(xy[k], [names[owner[k]]], source, transformed)
+
+
+def _check_footprint_places(geoms: np.ndarray, labels: list[str], source: str, transformed: bool) -> None:
+    """An InputError naming the first building with a vertex that is not finite or lies beyond
+    +/-`COORDINATE_LIMIT_M`, or whose footprint spans more than `FOOTPRINT_EXTENT_LIMIT_M` in plan. [m]"""
+    _check_vertices(geoms, [f"building {shown(label)}" for label in labels], source, transformed)
+    box = shapely.bounds(geoms)
+    with np.errstate(invalid="ignore"):
+        extent = np.fmax(box[:, 2] - box[:, 0], box[:, 3] - box[:, 1])
+    large = extent > FOOTPRINT_EXTENT_LIMIT_M
+    if large.any():
+        j = int(np.argmax(large))
+        raise InputError(f"{source} building {shown(labels[j])}: the footprint spans {extent[j]:.0f} m in plan, more "
+                         f"than {FOOTPRINT_EXTENT_LIMIT_M:.0f} m; is the layer in the CRS and units it declares?")
 
 
 def _as_text(value) -> str | None:
@@ -282,9 +318,10 @@ def _polygonal(geometry):
     return polys[0] if len(polys) == 1 else shapely.MultiPolygon(polys)
 
 
-def _numbers(table, ids, name, default, default_key, source, key_prefix, used, gt=None, ge=None,
+def _numbers(table, ids, name, default, default_key, source, key_prefix, used, gt=None, ge=None, le=None,
              optional=False) -> np.ndarray:
-    """Attribute `name` as floats, the default filling missing values; NaN left where `optional`."""
+    """Attribute `name` as floats, the default filling missing values; NaN left where `optional`. A value not
+    `> gt` / `>= ge`, or not `<= le`, is an InputError naming the building."""
     n = len(ids)
     if name in table.columns:
         values = table[name].tolist()
@@ -315,6 +352,9 @@ def _numbers(table, ids, name, default, default_key, source, key_prefix, used, g
         if number is None or not np.isfinite(number) or (gt is not None and not number > gt) or (
                 ge is not None and not number >= ge):
             raise InputError(f"{source} building {shown(ids[r])}: {name} must be a number {bound}; "
+                             f"got {shown(value)}")
+        if le is not None and not number <= le:
+            raise InputError(f"{source} building {shown(ids[r])}: {name} must be a number at most {le:g}; "
                              f"got {shown(value)}")
         out[r] = number
     return out

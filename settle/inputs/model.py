@@ -12,6 +12,8 @@ from pathlib import Path
 import numpy as np
 
 BEHAVIOURS = ("cohesive", "granular")
+#: The default of `[output] input_size_limit_mb`: the largest input file read (1 MB = 2**20 bytes). [MB]
+DEFAULT_INPUT_SIZE_LIMIT_MB = 512.0
 VERTICAL_REFERENCES = ("axis", "invert", "depth")
 
 
@@ -100,6 +102,8 @@ class Output:
     precision_mm: float = 0.001  # contributions smaller than this are not evaluated (see DEVELOPERS.md)
     settlement_geotiff: bool = False  # also write <stem>-settlement.tif (needs the raster extra)
     sections_chainage_m: tuple[float, ...] = ()  # transverse sections of the report; () = where settlement peaks
+    input_size_limit_mb: float = DEFAULT_INPUT_SIZE_LIMIT_MB  # largest input file read [MB]
+    memory_limit_mb: float | None = None  # largest memory a run may plan to use [MB]; None = from this machine
 
 
 @dataclass(frozen=True)
@@ -124,3 +128,5 @@ class Project:
     utilities: object | None = None  # settle.utility_lines.Utilities
     utility_options: object | None = None  # settle.pipelines.UtilityOptions
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    # Every file the loader read, the project file first, resolved, in the order read (a shapefile with its sidecars).
+    input_files: tuple = ()

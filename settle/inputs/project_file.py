@@ -4,6 +4,15 @@ Every path in the file is relative to the folder of the project file. Every mist
 naming the file, the table (and item) and the key or row, what is wrong and the value given. A key the loader does not
 know is an error too, with the closest known key suggested: a typo never falls back silently to a default.
 
+Hostile input is refused the same way: every file read (the project file first) must be a regular file, not a named
+pipe, a device or a folder, and no larger than `[output] input_size_limit_mb` (the project file itself against the
+default, 512 MB, before it is parsed); tables and arrays may nest at most `MAX_TOML_DEPTH` (32) levels; and every
+number must be finite and plausible (the bounds are `settle.inputs.tables.COORDINATE_LIMIT_M`, `LEVEL_LIMIT_M` and
+`DEPTH_LIMIT_M`, our choice): x, y and chainages (start_chainage_m, face_chainage_m, the chainages of reaches,
+rivers, support reaches and sections) within +/-10 000 000 m; levels (surface_level_m, groundwater_level_m,
+top_level_m, bed_level_m, water_level_m, and z, invert_z and survey z in the files) within +/-10 000 m; depths below
+the surface and building heights at most 1000 m. `Project.input_files` lists the files read, in order.
+
 Keys (units are in the names: _m metres, _mm millimetres, _pct per cent, _kn_m3 kN/m3; levels are elevations in
 the project's vertical datum, up positive)
 
@@ -51,6 +60,10 @@ the project's vertical datum, up positive)
     contour_levels_mm   list of numbers more than 0, strictly increasing, at least one, required.
     grid_threshold_mm   number more than 0, default 0.1: the grid keeps nodes whose settlement reaches this.
     precision_mm        number more than 0 and less than grid_threshold_mm, default 0.001.
+    input_size_limit_mb number more than 0, default 512: the largest input file read [MB]; every file the project
+                        names (a shapefile with its .shx, .dbf, .prj, .cpg) must be no larger.
+    memory_limit_mb     number more than 0, optional: the largest memory a run may plan to use [MB]; default: half
+                        of this machine's available memory.
 
 Example
 -------
@@ -99,9 +112,11 @@ from .utility_lines import UtilityReadOptions, read_utilities
 from .utility_settings import UtilityOptions
 from .face_settings import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach, check_face_options,
                             check_layer_strengths, check_rivers, check_support_reaches)
-from .model import BEHAVIOURS, VERTICAL_REFERENCES, Drive, Ground, Layer, Output, Project, Reach, Surface
-from .tables import (GIS_SUFFIXES, Alignment, read_alignment_csv, read_alignment_gis, read_points,
-                     read_surface_points, shown)
+from .model import (BEHAVIOURS, DEFAULT_INPUT_SIZE_LIMIT_MB, VERTICAL_REFERENCES, Drive, Ground, Layer, Output,
+                    Project, Reach, Surface)
+from .tables import (COORDINATE_RANGE, DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE, Alignment, bounds_text,
+                     check_input_file, printable, read_alignment_csv, read_alignment_gis, read_points,
+                     read_surface_points, shapefile_sidecars, shown)
 
 TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings",
             "monitoring")
@@ -126,7 +141,9 @@ MONITORING_KEYS = ("amber_mm", "red_mm")
 UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
 OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm", "settlement_geotiff",
-               "sections_chainage_m")
+               "sections_chainage_m", "input_size_limit_mb", "memory_limit_mb")
+#: Tables and arrays nested deeper than this are refused (a project file needs four levels at most).
+MAX_TOML_DEPTH = 32
 
 K_RANGE = dict(ge=0.1, le=1.5)  # trough width factor K [-]
 VOLUME_LOSS_RANGE = dict(gt=0.0, le=20.0)  # [%]
@@ -156,6 +173,7 @@ def load_project(path) -> Project:
     name = str(path)
     _check_keys(doc, TOP_KEYS, name)
     warnings: list[str] = []
+    files = _Files(folder=path.parent, limit_mb=_size_limit(doc, name), read=[path.resolve()])
 
     head = _table(doc, "project", name)
     where = f"{name} [project]"
@@ -163,18 +181,18 @@ def load_project(path) -> Project:
     title = _text(head, "name", where)
     crs = _crs(head, where, warnings)
 
-    ground = _ground(_table(doc, "ground", name), name, path.parent)
-    drives = _drives(doc, name, path.parent, crs, warnings)
+    ground = _ground(_table(doc, "ground", name), name, files)
+    drives = _drives(doc, name, files, crs, warnings)
     points = None
     if "points" in doc:
         where = f"{name} [points]"
         table = _table(doc, "points", name)
         _check_keys(table, POINTS_KEYS, where)
-        points = read_points(_path(table, "file", where, path.parent))
-    output = _output(_table(doc, "output", name), f"{name} [output]")
+        points = read_points(_path(table, "file", where, files))
+    output = _output(_table(doc, "output", name), f"{name} [output]", files.limit_mb)
     strengths, rivers, face = _face_inputs(doc, name, ground, drives)
-    utilities, utility_options = _utilities(doc, name, path.parent, crs, ground, warnings)
-    buildings, building_options = _buildings(doc, name, path.parent, crs, warnings)
+    utilities, utility_options = _utilities(doc, name, files, crs, ground, warnings)
+    buildings, building_options = _buildings(doc, name, files, crs, warnings)
     monitoring = None
     if "monitoring" in doc:
         where = f"{name} [monitoring]"
@@ -185,15 +203,21 @@ def load_project(path) -> Project:
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
                    warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face, utilities=utilities,
                    utility_options=utility_options, buildings=buildings, building_options=building_options,
-                   monitoring=monitoring)
+                   monitoring=monitoring, input_files=tuple(files.read))
 
 
 # ------------------------------------------------------------------------------------------------ generic helpers
 def _read_toml(path: Path) -> dict:
-    """The parsed TOML document; a missing file or a syntax error is an InputError naming the file."""
+    """The parsed TOML document; a missing file, one that is not a regular file or is larger than the default
+    input size limit, a syntax error or nesting deeper than `MAX_TOML_DEPTH` is an InputError naming the file."""
+    if path.exists() and not path.is_dir():
+        check_input_file(path, DEFAULT_INPUT_SIZE_LIMIT_MB, "project file")
     try:
         with open(path, "rb") as stream:
-            return tomllib.load(stream)
+            doc = tomllib.load(stream)
+    except RecursionError:
+        raise InputError(f"{path}: tables or arrays are nested too deeply (more than {MAX_TOML_DEPTH} levels); "
+                         "a project file needs only a few") from None
     except FileNotFoundError:
         raise InputError(f"{path}: project file not found (looked for {path.resolve()})") from None
     except IsADirectoryError:
@@ -204,6 +228,50 @@ def _read_toml(path: Path) -> dict:
         raise InputError(f"{path}: not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML: {exc}") from None
+    except ValueError as exc:  # e.g. a NUL character in the file name
+        raise InputError(f"{printable(path)}: cannot be read: {exc}") from None
+    depth = _nesting_depth(doc)
+    if depth > MAX_TOML_DEPTH:
+        raise InputError(f"{path}: tables or arrays are nested {depth} levels deep, more than {MAX_TOML_DEPTH}; "
+                         "a project file needs only a few")
+    return doc
+
+
+def _nesting_depth(doc: dict) -> int:
+    """How deep tables and arrays nest in a parsed document (the document itself = 0), without recursion."""
+    deepest, stack = 0, [(doc, 0)]
+    while stack:
+        item, depth = stack.pop()
+        deepest = max(deepest, depth)
+        children = item.values() if isinstance(item, dict) else item
+        stack.extend((child, depth + 1) for child in children if isinstance(child, (dict, list)))
+    return deepest
+
+
+@dataclasses.dataclass
+class _Files:
+    """The files the loader reads: the folder their names are relative to, the size limit [MB], and the files read
+    so far (resolved, in the order read)."""
+
+    folder: Path
+    limit_mb: float
+    read: list
+
+    def add(self, path: Path, label: str) -> None:
+        """Check `path` (and a shapefile's sidecars) with `check_input_file` and record them."""
+        for part in [path] + (shapefile_sidecars(path) if path.suffix.lower() == ".shp" else []):
+            resolved = check_input_file(part, self.limit_mb, label)
+            if resolved not in self.read:
+                self.read.append(resolved)
+
+
+def _size_limit(doc: dict, file: str) -> float:
+    """[output] input_size_limit_mb, read before any other file is. [MB]"""
+    table = doc.get("output")
+    if not isinstance(table, dict):
+        return DEFAULT_INPUT_SIZE_LIMIT_MB
+    return _number(table, "input_size_limit_mb", f"{file} [output]", required=False,
+                   default=DEFAULT_INPUT_SIZE_LIMIT_MB, gt=0.0)
 
 
 def _named(table: dict, where: str) -> str:
@@ -218,7 +286,7 @@ def _check_keys(table: dict, allowed, where: str) -> None:
         if key not in allowed:
             close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
             hint = f'did you mean "{close[0]}"?' if close else f"known keys: {', '.join(allowed)}"
-            raise InputError(f'{where}: unknown key "{key}"; {hint}')
+            raise InputError(f"{where}: unknown key {shown(key)}; {hint}")
 
 
 def _table(doc: dict, key: str, where: str, required: bool = True) -> dict:
@@ -253,15 +321,6 @@ def _unit(key: str) -> tuple[str, str]:
     return "", ""
 
 
-def _bounds(gt, ge, le, lt, symbol: str) -> str:
-    """Allowed range as words, e.g. "from 0.1 to 10 m"."""
-    if ge is not None and le is not None:
-        return f"from {ge:g} to {le:g}{symbol}"
-    parts = [f"{word} {bound:g}" for word, bound in
-             (("more than", gt), ("at least", ge), ("at most", le), ("less than", lt)) if bound is not None]
-    return " and ".join(parts) + symbol
-
-
 def _number(table: dict, key: str, where: str, *, required: bool = True, default: float | None = None,
             gt: float | None = None, ge: float | None = None, le: float | None = None,
             lt: float | None = None) -> float | None:
@@ -282,7 +341,7 @@ def _number(table: dict, key: str, where: str, *, required: bool = True, default
         raise InputError(f"{where}: {key} must be {kind}; got {shown(value)}")
     if ((gt is not None and not value > gt) or (ge is not None and not value >= ge)
             or (le is not None and not value <= le) or (lt is not None and not value < lt)):
-        raise InputError(f"{where}: {key} must be {_bounds(gt, ge, le, lt, symbol)}; got {shown(value)}")
+        raise InputError(f"{where}: {key} must be {bounds_text(gt, ge, le, lt, symbol)}; got {shown(value)}")
     return float(value)
 
 
@@ -301,14 +360,21 @@ def _text(table: dict, key: str, where: str, *, required: bool = True, choices=N
     return value
 
 
-def _path(table: dict, key: str, where: str, folder: Path) -> Path:
-    """The file `key` names, relative to the project folder; it must exist."""
+def _path(table: dict, key: str, where: str, files: _Files) -> Path:
+    """The file `key` names, relative to the project folder: it must exist and be a regular file within the size
+    limit; it is recorded among the files read."""
     value = _text(table, key, where)
-    path = folder / value
-    if not path.exists():
-        raise InputError(f"{where}: {key} = {shown(value)}: file not found: {path.resolve()}")
-    if path.is_dir():
-        raise InputError(f"{where}: {key} = {shown(value)}: a folder, not a file: {path.resolve()}")
+    path = files.folder / value
+    named = f"{where}: {key} = {shown(value)}"
+    try:
+        exists, folder, full = path.exists(), path.is_dir(), path.resolve()
+    except (OSError, ValueError) as exc:
+        raise InputError(f"{named}: not a usable file name: {getattr(exc, 'strerror', None) or exc}") from None
+    if not exists:
+        raise InputError(f"{named}: file not found: {printable(full)}")
+    if folder:
+        raise InputError(f"{named}: a folder, not a file: {printable(full)}")
+    files.add(path, named)
     return path
 
 
@@ -339,7 +405,7 @@ def _crs(table: dict, where: str, warnings: list[str]) -> str:
     return code
 
 
-def _ground(table: dict, file: str, folder: Path) -> Ground:
+def _ground(table: dict, file: str, files: _Files) -> Ground:
     """[ground] and its [[ground.layers]]."""
     where = f"{file} [ground]"
     _check_keys(table, GROUND_KEYS, where)
@@ -348,10 +414,11 @@ def _ground(table: dict, file: str, folder: Path) -> Ground:
         raise InputError(f"{where}: give exactly one of surface_level_m (flat ground) or surface_points "
                          f"(CSV of x, y, z); got {given}")
     if "surface_level_m" in table:
-        surface = Surface(level_m=_number(table, "surface_level_m", where), source=f"{where} surface_level_m")
+        surface = Surface(level_m=_number(table, "surface_level_m", where, **LEVEL_RANGE),
+                          source=f"{where} surface_level_m")
     else:
-        surface = read_surface_points(_path(table, "surface_points", where, folder))
-    water = _number(table, "groundwater_level_m", where)
+        surface = read_surface_points(_path(table, "surface_points", where, files))
+    water = _number(table, "groundwater_level_m", where, **LEVEL_RANGE)
     layers = []
     for i, item in enumerate(_tables(table, "layers", "ground.layers", where), start=1):
         layers.append(_layer(item, f"{file} [[ground.layers]] #{i}", layers[-1] if layers else None))
@@ -363,7 +430,7 @@ def _layer(table: dict, where: str, above: Layer | None) -> Layer:
     where = _named(table, where)
     _check_keys(table, LAYER_KEYS + STRENGTH_KEYS, where)
     name = _text(table, "name", where)
-    top = _number(table, "top_level_m", where)
+    top = _number(table, "top_level_m", where, **LEVEL_RANGE)
     if above is not None and not top < above.top_level_m:
         raise InputError(f'{where}: top_level_m must be below the top of the layer above ("{above.name}", '
                          f"{above.top_level_m:g} m): layers go from the top down; got {shown(table['top_level_m'])}")
@@ -373,11 +440,11 @@ def _layer(table: dict, where: str, above: Layer | None) -> Layer:
                  behaviour=_text(table, "behaviour", where, choices=BEHAVIOURS))
 
 
-def _drives(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]) -> tuple[Drive, ...]:
+def _drives(doc: dict, file: str, files: _Files, crs: str, warnings: list[str]) -> tuple[Drive, ...]:
     """Every [[drives]] item; names unique."""
     drives: list[Drive] = []
     for i, item in enumerate(_tables(doc, "drives", "drives", file), start=1):
-        drive = _drive(item, f"{file} [[drives]] #{i}", folder, crs, warnings)
+        drive = _drive(item, f"{file} [[drives]] #{i}", files, crs, warnings)
         for j, other in enumerate(drives, start=1):
             if other.name == drive.name:
                 raise InputError(f"{file} [[drives]] #{i} {shown(drive.name)}: name is already used by "
@@ -386,20 +453,20 @@ def _drives(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]) -
     return tuple(drives)
 
 
-def _drive(table: dict, where: str, folder: Path, crs: str, warnings: list[str]) -> Drive:
+def _drive(table: dict, where: str, files: _Files, crs: str, warnings: list[str]) -> Drive:
     """One [[drives]] item, with its alignment read and checked."""
     where = _named(table, where)
     _check_keys(table, DRIVE_KEYS, where)
     name = _text(table, "name", where)
     outer = _number(table, "outer_diameter_m", where, ge=0.1, le=10.0)
     inner = _number(table, "inner_diameter_m", where, required=False, gt=0.0, lt=outer)
-    start = _number(table, "start_chainage_m", where, required=False, default=0.0)
-    face = _number(table, "face_chainage_m", where, required=False, ge=start)
+    start = _number(table, "start_chainage_m", where, required=False, default=0.0, **COORDINATE_RANGE)
+    face = _chainage_after(table, "face_chainage_m", where, ge=start, required=False)
     volume_loss = _number(table, "volume_loss_pct", where, **VOLUME_LOSS_RANGE)
     k = _number(table, "trough_width_k", where, required=False, **K_RANGE)
     reaches = _reaches(table, where)
     support = _face_support(table, where, name)
-    alignment = _alignment(table, where, folder, crs)
+    alignment = _alignment(table, where, files, crs)
     warnings.extend(alignment.warnings)
     if alignment.vertical == "invert" and inner is None:
         raise InputError(f"{where}: the alignment gives invert levels ({alignment.source}); inner_diameter_m is "
@@ -410,9 +477,17 @@ def _drive(table: dict, where: str, folder: Path, crs: str, warnings: list[str])
                  face_support=support)
 
 
-def _alignment(table: dict, where: str, folder: Path, crs: str) -> Alignment:
+def _chainage_after(table: dict, key: str, where: str, *, required: bool = True, gt: float | None = None,
+                    ge: float | None = None) -> float | None:
+    """A chainage [m] after another (`> gt` or `>= ge`), within +/-`COORDINATE_LIMIT_M`; each bound has its own
+    message."""
+    value = _number(table, key, where, required=required, gt=gt, ge=ge)
+    return value if value is None else _number(table, key, where, **COORDINATE_RANGE)
+
+
+def _alignment(table: dict, where: str, files: _Files, crs: str) -> Alignment:
     """The drive's alignment file, CSV or GIS by its suffix; GIS-only keys with a CSV are an error."""
-    path = _path(table, "alignment", where, folder)
+    path = _path(table, "alignment", where, files)
     suffix = path.suffix.lower()
     if suffix == ".csv":
         for key in GIS_ONLY_KEYS:
@@ -444,8 +519,8 @@ def _reaches(drive: dict, where: str) -> tuple[Reach, ...]:
     """The drive's [[drives.reaches]], sorted by from_chainage_m; overlapping reaches are an error naming both."""
     items = []
     for i, table, at in _drive_items(drive, "reaches", REACH_KEYS, where):
-        start = _number(table, "from_chainage_m", at)
-        reach = Reach(from_chainage_m=start, to_chainage_m=_number(table, "to_chainage_m", at, gt=start),
+        start = _number(table, "from_chainage_m", at, **COORDINATE_RANGE)
+        reach = Reach(from_chainage_m=start, to_chainage_m=_chainage_after(table, "to_chainage_m", at, gt=start),
                       volume_loss_pct=_number(table, "volume_loss_pct", at, **VOLUME_LOSS_RANGE),
                       trough_width_k=_number(table, "trough_width_k", at, required=False, **K_RANGE))
         items.append((i, reach))
@@ -457,8 +532,9 @@ def _reaches(drive: dict, where: str) -> tuple[Reach, ...]:
     return tuple(reach for _, reach in items)
 
 
-def _output(table: dict, where: str) -> Output:
-    """[output]: grid spacing, contour levels, grid threshold and precision."""
+def _output(table: dict, where: str, size_limit_mb: float) -> Output:
+    """[output]: grid spacing, contour levels, grid threshold and precision, the limits of a run (the size limit of
+    input files [MB] is read before any file, by `_size_limit`)."""
     _check_keys(table, OUTPUT_KEYS, where)
     spacing = _number(table, "grid_spacing_m", where, gt=0.0)
     levels = _levels(table, "contour_levels_mm", where)
@@ -471,18 +547,20 @@ def _output(table: dict, where: str) -> Output:
     if not isinstance(geotiff, bool):
         raise InputError(f"{where}: settlement_geotiff must be true or false; got {shown(geotiff)}")
     if geotiff and importlib.util.find_spec("rasterio") is None:
-        raise InputError(f'{where}: settlement_geotiff = true needs rasterio; install it with pip install -e ".[raster]" '
-                         "or set settlement_geotiff = false")
+        raise InputError(f"{where}: settlement_geotiff = true needs rasterio; install it with "
+                         'pip install -e ".[raster]" or set settlement_geotiff = false')
     sections = ()
     if "sections_chainage_m" in table:
         value = table["sections_chainage_m"]
         if not isinstance(value, list) or not value:
             raise InputError(f"{where}: sections_chainage_m must be a non-empty list of chainages in metres, "
                              f"e.g. [120, 295]; got {shown(value)}")
-        sections = tuple(_number({f"sections_chainage_m item {j}": v}, f"sections_chainage_m item {j}", where)
-                         for j, v in enumerate(value, start=1))
+        sections = tuple(_number({f"sections_chainage_m item {j}": v}, f"sections_chainage_m item {j}", where,
+                                 **COORDINATE_RANGE) for j, v in enumerate(value, start=1))
     return Output(grid_spacing_m=spacing, contour_levels_mm=levels, grid_threshold_mm=threshold,
-                  precision_mm=precision, settlement_geotiff=geotiff, sections_chainage_m=sections)
+                  precision_mm=precision, settlement_geotiff=geotiff, sections_chainage_m=sections,
+                  input_size_limit_mb=size_limit_mb,
+                  memory_limit_mb=_number(table, "memory_limit_mb", where, required=False, gt=0.0))
 
 
 def _levels(table: dict, key: str, where: str) -> tuple[float, ...]:
@@ -509,8 +587,8 @@ def _face_support(drive: dict, where: str, name: str) -> tuple[SupportReach, ...
         return ()
     reaches = []
     for _, table, at in _drive_items(drive, "face_support", SUPPORT_KEYS, where):
-        reaches.append(SupportReach(from_chainage_m=_number(table, "from_chainage_m", at),
-                                    to_chainage_m=_number(table, "to_chainage_m", at),
+        reaches.append(SupportReach(from_chainage_m=_number(table, "from_chainage_m", at, **COORDINATE_RANGE),
+                                    to_chainage_m=_number(table, "to_chainage_m", at, **COORDINATE_RANGE),
                                     mode=_text(table, "mode", at, choices=SUPPORT_MODES)))
     check_support_reaches(reaches, name, where.split(" [[")[0])
     return tuple(reaches)
@@ -544,10 +622,10 @@ def _face_inputs(doc: dict, file: str, ground: Ground, drives) -> tuple[tuple, t
             _check_keys(table, RIVER_KEYS, at)
             rivers.append(River(drive=_text(table, "drive", at), name=_text(table, "name", at, required=False,
                                                                                 default=""),
-                                from_chainage_m=_number(table, "from_chainage_m", at),
-                                to_chainage_m=_number(table, "to_chainage_m", at),
-                                bed_level_m=_number(table, "bed_level_m", at),
-                                water_level_m=_number(table, "water_level_m", at)))
+                                from_chainage_m=_number(table, "from_chainage_m", at, **COORDINATE_RANGE),
+                                to_chainage_m=_number(table, "to_chainage_m", at, **COORDINATE_RANGE),
+                                bed_level_m=_number(table, "bed_level_m", at, **LEVEL_RANGE),
+                                water_level_m=_number(table, "water_level_m", at, **LEVEL_RANGE)))
         check_rivers(rivers, [d.name for d in drives], file)
 
     face = None
@@ -577,7 +655,7 @@ def _face_inputs(doc: dict, file: str, ground: Ground, drives) -> tuple[tuple, t
 
 
 # ----------------------------------------------------------------------------------------------------- utilities
-def _utilities(doc: dict, file: str, folder: Path, crs: str, ground: Ground, warnings: list[str]):
+def _utilities(doc: dict, file: str, files: _Files, crs: str, ground: Ground, warnings: list[str]):
     """[utilities]: the buried pipes to assess, and the assessment's settings; (None, None) when absent."""
     if "utilities" not in doc:
         return None, None
@@ -590,7 +668,7 @@ def _utilities(doc: dict, file: str, folder: Path, crs: str, ground: Ground, war
                               vertical=_text(table, "vertical", where, required=False, choices=UTILITY_VERTICALS,
                                              default="depth"),
                               surface_level=GroundModel(ground).surface_level, key=where)
-    utilities = read_utilities(_path(table, "file", where, folder), crs, read)
+    utilities = read_utilities(_path(table, "file", where, files), crs, read)
     warnings.extend(utilities.warnings)
     defaults = UtilityOptions()
     options = UtilityOptions(
@@ -605,7 +683,7 @@ def _utilities(doc: dict, file: str, folder: Path, crs: str, ground: Ground, war
 
 
 # ----------------------------------------------------------------------------------------------------- buildings
-def _buildings(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]):
+def _buildings(doc: dict, file: str, files: _Files, crs: str, warnings: list[str]):
     """[buildings]: the footprints to assess and the assessment's settings; (None, None) when absent."""
     if "buildings" not in doc:
         return None, None
@@ -621,8 +699,9 @@ def _buildings(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]
                                                                 "foundation_depth_attribute", "structure_attribute")}
     defaults = BuildingDefaults(
         **{k: v for k, v in text.items() if v is not None},
-        default_height_m=_number(table, "default_height_m", where, required=False, gt=0.0),
-        default_foundation_depth_m=_number(table, "default_foundation_depth_m", where, required=False, ge=0.0),
+        default_height_m=_number(table, "default_height_m", where, required=False, gt=0.0, le=DEPTH_LIMIT_M),
+        default_foundation_depth_m=_number(table, "default_foundation_depth_m", where, required=False, ge=0.0,
+                                           le=DEPTH_LIMIT_M),
         default_structure=_text(table, "default_structure", where, required=False),
         e_over_g=e_over_g)
     base = AssessmentOptions()
@@ -640,6 +719,6 @@ def _buildings(doc: dict, file: str, folder: Path, crs: str, warnings: list[str]
         modification_factors={k: _number(table, k, where, ge=0.0) for k in MODIFICATION_ATTRIBUTES if k in table},
         key_prefix=where)
     options.check()
-    buildings = read_buildings(_path(table, "file", where, folder), crs, defaults, where)
+    buildings = read_buildings(_path(table, "file", where, files), crs, defaults, where)
     warnings.extend(buildings.notes())
     return buildings, options

@@ -7,39 +7,45 @@ The file
     UTF-8 CSV with one header line (see `settle.tables`; a row is named by its line number, header = line 1).
 
     point_id         text, required: the monitoring point.
-    date             required: ISO 8601, a date (2024-03-01) or a date and time (2024-03-01T08:30, seconds and an
-                     offset such as +01:00 or Z optional). A time with an offset is converted to UTC; a time without
-                     one is taken as UTC as written. Kept to the second.
+    date             required: ISO 8601 in the extended form, a date (2024-03-01) or a date and time
+                     (2024-03-01T08:30 or 2024-03-01T08:30:15, a fraction of a second allowed, an offset such as
+                     +01:00 or Z optional), dated from `EARLIEST_DATE` to `LATEST_DATE`. A time with an offset is
+                     converted to UTC; a time without one is taken as UTC as written. Kept to the second. A date in
+                     any other form (01/03/2024, 2024-03-01 08:30, 20240301) or out of that span is an InputError for
+                     the whole file naming the row: a date is never guessed, and a file whose dates are in another
+                     form must not lose its rows quietly.
     settlement_mm    number, required: the reading, positive downward, as the user refers it to its base reading.
-                     Readings are used as given: nothing is re-zeroed.
+                     Readings are used as given: nothing is re-zeroed. At most `SETTLEMENT_LIMIT_MM` either way.
     face_chainage_m  number, required: chainage of the face of the drive when the reading was taken; within the
                      drive (its start to its end chainage).
     drive            text: the name of the drive the reading is attributed to. Required (the column and every cell)
                      when the project has several drives; optional with one (an empty cell then means that drive).
-    x, y             numbers [m, project CRS], optional: where the point is. A row with both cells empty takes the
-                     point's place from the project's [points] table (matched on point_id = id), or else from an
-                     earlier row of the same point. A row with x, y gives its own place, which must agree with the
-                     [points] table (when the point is there) and with the point's earlier rows within
+    x, y             numbers [m, project CRS] within +/-`COORDINATE_LIMIT_M`, optional: where the point is. A row with
+                     both cells empty takes the point's place from the project's [points] table (matched on point_id =
+                     id), or else from an earlier row of the same point. A row with x, y gives its own place, which must
+                     agree with the [points] table (when the point is there) and with the point's earlier rows within
                      `SAME_PLACE_M`. Without x, y columns the project needs a [points] table.
-    depth_m          number >= 0, optional: depth of the point below the surface. An empty cell or no column takes
-                     the [points] table's depth, else the depth of the point's earlier rows, else 0 (a surface
-                     point); a depth that differs from the point's earlier rows by more than `SAME_PLACE_M` is
-                     left out.
+    depth_m          number from 0 to `DEPTH_LIMIT_M`, optional: depth of the point below the surface. An empty
+                     cell or no column takes the [points] table's depth, else the depth of the point's earlier rows,
+                     else 0 (a surface point); a depth that differs from the point's earlier rows by more than
+                     `SAME_PLACE_M` is left out.
 
 Rows left out (each reported by line number with the reason, and counted; never silently)
     an empty point_id; an unknown or empty drive (several drives); a settlement_mm, face_chainage_m, x, y or depth_m
-    that is not a finite number (depth_m also when negative); a date that is not ISO 8601; a face_chainage_m outside
-    the drive; an unknown point (not in [points] and placed by no earlier row); only one of x, y; a place or depth
-    that disagrees with the [points] table or with the point's earlier rows; a second reading of a point at the same
-    date and time (duplicate); a reading dated before an earlier row of the same point (the file must list each
-    point's readings in date order; of two rows out of order, the later one in the file is left out); a face behind
-    the face of an earlier reading of the same point and drive (a face only advances).
+    that is not a finite number or lies beyond its bounds above (depth_m also when negative); an empty date; a
+    face_chainage_m outside the drive; an unknown point (not in [points] and placed by no earlier row); only one of x,
+    y; a place or depth that disagrees with the [points] table or with the point's earlier rows; a second reading of a
+    point at the same date and time (duplicate); a reading dated before an earlier row of the same point (the file must
+    list each point's readings in date order; of two rows out of order, the later one in the file is left out); a face
+    behind the face of an earlier reading of the same point and drive (a face only advances).
 
-A missing required column, a missing drive column with several drives, no x, y and no [points] table, or a file in
-which every row is left out, is an InputError for the whole file.
+A file that is not a regular file or is larger than `[output] input_size_limit_mb`, a missing required column, a
+missing drive column with several drives, no x, y and no [points] table, a date not in the form above or out of its
+span, or a file in which every row is left out, is an InputError for the whole file.
 """
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -50,7 +56,7 @@ from ..errors import InputError, where
 from .ground import GroundModel
 from .model import Project
 from .route import build_drive
-from .tables import read_csv, shown
+from .tables import COORDINATE_LIMIT_M, DEPTH_LIMIT_M, bounds_text, check_input_file, read_csv, shown
 
 #: A point keeps its place: rows of one point (and the [points] table) must agree within this in plan. Our choice:
 #: larger than the horizontal movement of a monitored point, smaller than the spacing of points in an array. [m]
@@ -58,6 +64,13 @@ SAME_PLACE_M = 0.1
 #: A face chainage this close outside the drive is taken as its end (rounding of the chainage written). [m]
 CHAINAGE_TOLERANCE_M = 1e-6
 REQUIRED = ("point_id", "date", "settlement_mm", "face_chainage_m")
+#: The span of dates a reading may carry, as written (our choice: a year 1 or 9999 is a typing or export mistake).
+EARLIEST_DATE, LATEST_DATE = "1900-01-01", "2200-12-31"
+#: A settlement or heave larger than this is a mistake (a value in micrometres, a corrupt cell); our choice. [mm]
+SETTLEMENT_LIMIT_MM = 10_000.0
+DATE_FORM = ("YYYY-MM-DD, optionally with a time THH:MM or THH:MM:SS (a space may stand for the T) and an offset "
+             "such as +01:00 or Z")
+_ISO_DATE = re.compile(r"\d{4}-\d{2}-\d{2}([T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})?)?", re.ASCII)
 
 
 @dataclass(frozen=True)
@@ -104,27 +117,37 @@ class Readings:
 
 
 def parse_date(text: str) -> np.datetime64:
-    """An ISO 8601 date or date and time as numpy datetime64[s] in UTC; ValueError when it is not one.
+    """An ISO 8601 date or date and time in the extended form (`DATE_FORM`), dated from `EARLIEST_DATE` to
+    `LATEST_DATE`, as numpy datetime64[s] in UTC; a ValueError saying why ("is not ...") when it is not one.
 
     A time with a UTC offset is converted to UTC; one without is taken as UTC as written.
 
     >>> str(parse_date("2024-03-01T09:30+01:00"))
     '2024-03-01T08:30:00'
     """
-    moment = datetime.fromisoformat(text)
+    if _ISO_DATE.fullmatch(text) is None:
+        raise ValueError(f"is not an ISO 8601 date ({DATE_FORM})")
+    if not EARLIEST_DATE <= text[:10] <= LATEST_DATE:
+        raise ValueError(f"is outside the dates a reading may carry ({EARLIEST_DATE} to {LATEST_DATE})")
+    try:
+        moment = datetime.fromisoformat(text)
+    except ValueError:
+        raise ValueError(f"is not a calendar date and time ({DATE_FORM})") from None
     if moment.tzinfo is not None:
         moment = moment.astimezone(timezone.utc).replace(tzinfo=None)
     return np.datetime64(moment.replace(microsecond=0), "s")
 
 
-def _number(cell: str, column: str) -> tuple[float | None, str | None]:
-    """(value, None) for a finite number, else (None, reason)."""
+def _number(cell: str, column: str, limit: float | None = None) -> tuple[float | None, str | None]:
+    """(value, None) for a finite number within +/-`limit`, else (None, reason)."""
     try:
         value = float(cell)
     except ValueError:
         return None, f"{column} is not a number; got {shown(cell)}"
     if not np.isfinite(value):
         return None, f"{column} must be a finite number; got {shown(cell)}"
+    if limit is not None and not abs(value) <= limit:
+        return None, f"{column} must be a number {bounds_text(ge=-limit, le=limit)}; got {shown(cell)}"
     return value, None
 
 
@@ -145,12 +168,14 @@ def read_readings(path, project: Project) -> Readings:
     InputError  For a problem with the whole file: a missing column, no way to place the points, no row kept.
     """
     path = Path(path)
+    check_input_file(path, project.output.input_size_limit_mb, "readings file")
     table = read_csv(path)
     table.require(*REQUIRED)
     names = tuple(d.name for d in project.drives)
     _check_columns(path, table, names, project.points)
+    dates = _dates(table, path)
     span = _chainage_spans(project)
-    kept, left_out = _check_rows(table, names, span, project.points)
+    kept, left_out = _check_rows(table, dates, names, span, project.points)
     return _build_readings(kept, left_out, names, path)
 
 
@@ -167,6 +192,21 @@ def _check_columns(path: Path, table, names: tuple[str, ...], points) -> None:
                          "give x and y (and depth_m for points below the surface)")
     if len(table) == 0:
         raise InputError(f"{path}: no readings below the header")
+
+
+def _dates(table, path: Path) -> list:
+    """The date of every row in UTC (None for an empty cell, a row to leave out); a date in another form or out of
+    its span is an InputError naming the row: the whole file is refused, since its dates cannot be trusted."""
+    column = table.header.index("date")
+    dates = []
+    for line, cells in zip(table.lines, table.cells):
+        text = cells[column]
+        try:
+            dates.append(parse_date(text) if text else None)
+        except ValueError as why:
+            raise InputError(f"{where(path, row=int(line))}: date {shown(text)} {why}; a date is never guessed, so "
+                             "the whole file is refused") from None
+    return dates
 
 
 def _chainage_spans(project: Project) -> list[tuple[float, float]]:
@@ -206,18 +246,20 @@ class _PointHistory:
         self.face_of[(pid, d)] = (face, line)
 
 
-def _check_rows(table, names: tuple[str, ...], span: list[tuple[float, float]], points) -> tuple[dict, list]:
-    """Check the file row by row: the values of the rows kept (by column) and the rows left out, in file order."""
+def _check_rows(table, dates: list, names: tuple[str, ...], span: list[tuple[float, float]],
+                points) -> tuple[dict, list]:
+    """Check the file row by row, with each row's date in UTC (None when empty): the values of the rows kept (by
+    column) and the rows left out, in file order."""
     table_place = _places_in_table(points)
     column = {name: table.header.index(name) for name in table.header if name}
     has_drive = table.has("drive")
     kept: dict[str, list] = {k: [] for k in ("point_id", "x", "y", "depth", "date", "s", "face", "drive", "line")}
     left_out: list[LeftOut] = []
     history = _PointHistory()
-    for line, cells in zip(table.lines, table.cells):
+    for line, cells, date in zip(table.lines, table.cells, dates):
         line = int(line)
         cell = {name: cells[c] for name, c in column.items()}
-        reading, reason = _reading_of_row(cell, line, has_drive, names, span, table_place, points, history)
+        reading, reason = _reading_of_row(cell, date, line, has_drive, names, span, table_place, points, history)
         if reason:
             left_out.append(LeftOut(line, reason))
             continue
@@ -228,7 +270,8 @@ def _check_rows(table, names: tuple[str, ...], span: list[tuple[float, float]], 
     return kept, left_out
 
 
-def _reading_of_row(cell: dict[str, str], line: int, has_drive: bool, names: tuple[str, ...],
+def _reading_of_row(cell: dict[str, str], date: np.datetime64 | None, line: int, has_drive: bool,
+                    names: tuple[str, ...],
                     span: list[tuple[float, float]], table_place: dict, points,
                     history: _PointHistory) -> tuple[tuple | None, str | None]:
     """(the row's point, x, y, depth, date, settlement, face, drive, line; None), or (None, why it is left out)."""
@@ -241,9 +284,8 @@ def _reading_of_row(cell: dict[str, str], line: int, has_drive: bool, names: tup
     s, face, problem = _numbers_of_row(cell, names[d], span[d])
     if problem:
         return None, problem
-    date, problem = _date_of_row(cell["date"])
-    if problem:
-        return None, problem
+    if date is None:
+        return None, "date is empty"
     listed = table_place.get(pid)
     placed = history.place_of.get(pid)
     x, y, problem = _place_of_point(pid, cell, listed, placed, points)
@@ -273,7 +315,7 @@ def _drive_of_row(cell: dict[str, str], has_drive: bool, names: tuple[str, ...])
 def _numbers_of_row(cell: dict[str, str], drive_name: str,
                     span: tuple[float, float]) -> tuple[float | None, float | None, str | None]:
     """(settlement [mm], face chainage [m] within the drive's span [m], None), or (None, None, why it is left out)."""
-    s, problem = _number(cell["settlement_mm"], "settlement_mm")
+    s, problem = _number(cell["settlement_mm"], "settlement_mm", SETTLEMENT_LIMIT_MM)
     if problem:
         return None, None, problem
     face, problem = _number(cell["face_chainage_m"], "face_chainage_m")
@@ -284,15 +326,6 @@ def _numbers_of_row(cell: dict[str, str], drive_name: str,
         return None, None, (f"face_chainage_m {face:g} is outside drive {shown(drive_name)} "
                             f"(chainage {lo:.2f} to {hi:.2f} m)")
     return s, min(max(face, lo), hi), None
-
-
-def _date_of_row(text: str) -> tuple[np.datetime64 | None, str | None]:
-    """(the reading's date and time in UTC, None), or (None, why it is left out)."""
-    try:
-        return parse_date(text), None
-    except ValueError:
-        return None, (f"date {shown(text)} is not an ISO 8601 date (YYYY-MM-DD, optionally with a time "
-                      "THH:MM[:SS] and an offset such as +01:00 or Z)")
 
 
 def _place_of_point(pid: str, cell: dict[str, str], listed: tuple | None, placed: tuple | None,
@@ -314,8 +347,8 @@ def _place_of_point(pid: str, cell: dict[str, str], listed: tuple | None, placed
         return None, None, (f"point {shown(pid)}: give both x and y, or neither (to take them from the [points] "
                             "table)")
     else:
-        x, problem = _number(xy_cells[0], "x")
-        y, problem_y = _number(xy_cells[1], "y")
+        x, problem = _number(xy_cells[0], "x", COORDINATE_LIMIT_M)
+        y, problem_y = _number(xy_cells[1], "y", COORDINATE_LIMIT_M)
         if problem or problem_y:
             return None, None, problem or problem_y
         if listed is not None and np.hypot(x - listed[0], y - listed[1]) > SAME_PLACE_M:
@@ -339,6 +372,8 @@ def _depth_of_point(pid: str, depth_cell: str, listed: tuple | None,
         depth, problem = _number(depth_cell, "depth_m")
         if problem or depth < 0.0:
             return None, problem or f"depth_m must be at least 0 (below the ground surface); got {shown(depth_cell)}"
+        if depth > DEPTH_LIMIT_M:
+            return None, f"depth_m must be at most {DEPTH_LIMIT_M:g} (below the surface); got {shown(depth_cell)}"
     else:
         depth = listed[2] if listed is not None else placed[3] if placed is not None else 0.0
     if placed is not None and abs(depth - placed[3]) > SAME_PLACE_M:

@@ -11,6 +11,14 @@ GIS line layers (.gpkg, .geojson / .json, .shp)
     to the project CRS when the layer has another CRS; a layer with no CRS is taken to be in the project CRS (the
     reader returns a warning saying so). Z is never changed.
 
+Files
+    Every file read must be a regular file (a named pipe, a device or a folder is refused before it is opened) no
+    larger than the project's `[output] input_size_limit_mb` (`check_input_file`).
+
+Plausible values (`COORDINATE_LIMIT_M`, `LEVEL_LIMIT_M`, `DEPTH_LIMIT_M`: our choice)
+    x, y and chainages within +/-10 000 km, levels within +/-10 km of the datum, depths below the surface at most
+    1 km. A value beyond is a mistake (a wrong unit or CRS, a corrupt cell), and an error naming the row.
+
 Alignment checks (both sources)
     at least 2 vertices; no two consecutive vertices at the same plan position (closer than `PLAN_TOLERANCE_M`): the
     same level too means a repeated vertex, a different level a vertical step, and both are errors; no vertex where
@@ -20,6 +28,8 @@ Alignment checks (both sources)
 from __future__ import annotations
 
 import csv
+import os
+import stat
 import warnings as python_warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -39,16 +49,136 @@ LEVEL_TOLERANCE_M = 0.001  # vertical values closer than this are the same [m]
 MAX_TURN_DEG = 90.0  # a plan turn of this or more means the route doubles back [deg]
 ANGLE_TOLERANCE_DEG = 1e-9  # turns this close to MAX_TURN_DEG count as reaching it (rounding of cos 90) [deg]
 
+# Bounds of a plausible value (our choice, not a standard). Beyond them a value is a mistake (a wrong unit, a wrong
+# CRS, a corrupt cell), never a real place; within them a double resolves far below a millimetre (about 2 nm at
+# 1e7 m), while at 1e16 m it no longer resolves a metre.
+#: |x|, |y| of any place in the project CRS, and |chainage| along a drive. [m]
+COORDINATE_LIMIT_M = 1.0e7
+#: |level| in the project's vertical datum: axis and invert levels, ground surface, groundwater, layer tops, river bed
+#: and water; the deepest mine and the highest mountain lie well within. [m]
+LEVEL_LIMIT_M = 1.0e4
+#: Depth below the ground surface of an axis, a point, a pipe or a foundation, and the height of a building. [m]
+DEPTH_LIMIT_M = 1.0e3
+#: Files beside a shapefile that GDAL reads with it (index, attributes, CRS, code page).
+SHAPEFILE_SIDECARS = (".shx", ".dbf", ".prj", ".cpg")
+COORDINATE_RANGE = dict(ge=-COORDINATE_LIMIT_M, le=COORDINATE_LIMIT_M)  # also chainages [m]
+LEVEL_RANGE = dict(ge=-LEVEL_LIMIT_M, le=LEVEL_LIMIT_M)  # [m]
+_FILE_KINDS = ((stat.S_ISDIR, "a folder"), (stat.S_ISFIFO, "a named pipe (FIFO)"), (stat.S_ISCHR, "a character device"),
+               (stat.S_ISBLK, "a block device"), (stat.S_ISSOCK, "a socket"))
+
 
 def shown(value) -> str:
-    """A value as a message shows it: text in double quotes, TOML's true/false, "a table" for a table."""
+    """A value as a message shows it: text in double quotes (a line break or other control character escaped, so a
+    message stays one line), TOML's true/false, "a table" for a table."""
     if isinstance(value, str):
-        return f'"{value}"'
+        return f'"{printable(value)}"'
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, dict):
         return "a table"
     return str(value)
+
+
+def printable(text) -> str:
+    """Text (or a path) with line breaks and other characters that do not print escaped, e.g. "\\n", so a message
+    that shows it stays one line."""
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in str(text))
+
+
+def number_text(value: float) -> str:
+    """A bound as a message shows it: whole numbers in full (10000000, not 1e+07), others as `:g`."""
+    value = float(value)
+    return str(int(value)) if value.is_integer() and abs(value) < 1e15 else f"{value:g}"
+
+
+def bounds_text(gt=None, ge=None, le=None, lt=None, symbol: str = "") -> str:
+    """An allowed range as words, e.g. "from 0.1 to 10 m" or "more than 0 and at most 1000 m"."""
+    if ge is not None and le is not None:
+        return f"from {number_text(ge)} to {number_text(le)}{symbol}"
+    parts = [f"{word} {number_text(bound)}" for word, bound in
+             (("more than", gt), ("at least", ge), ("at most", le), ("less than", lt)) if bound is not None]
+    return " and ".join(parts) + symbol
+
+
+def within(values, gt=None, ge=None, le=None, lt=None) -> np.ndarray:
+    """True where a value is finite and inside the bounds (gt: >, ge: >=, le: <=, lt: <). [-]"""
+    values = np.asarray(values, dtype=float)
+    ok = np.isfinite(values)
+    for bound, test in ((gt, np.greater), (ge, np.greater_equal), (le, np.less_equal), (lt, np.less)):
+        if bound is not None:
+            ok &= test(values, bound)
+    return ok
+
+
+def check_input_file(path, limit_mb: float | None = None, label: str | None = None) -> Path:
+    """Refuse an input file that is not a regular file, or is larger than `limit_mb`, before anything opens it.
+
+    A named pipe would block the read and a device (/dev/zero) never end; `os.stat` tells both without opening.
+
+    Parameters
+    ----------
+    path : path            The file.
+    limit_mb : float       Largest size allowed; None = no size check (the kind is always checked). [MB]
+    label : str or None    Who names the file, for messages, e.g. 'project.toml [points] file = "p.csv"'.
+
+    Returns
+    -------
+    Path  The file, resolved (absolute, symbolic links followed).
+    """
+    path = Path(path)
+    named = f"{label}: {printable(path)}" if label else printable(path)
+    try:
+        info = os.stat(path)
+    except FileNotFoundError:
+        raise InputError(f"{named}: file not found") from None
+    except (OSError, ValueError) as exc:
+        raise InputError(f"{named}: cannot be read: {getattr(exc, 'strerror', None) or exc}") from None
+    if not stat.S_ISREG(info.st_mode):
+        kind = next((words for test, words in _FILE_KINDS if test(info.st_mode)), "not a regular file")
+        raise InputError(f"{named} is {kind}, not a regular file; give a file")
+    size_mb = info.st_size / 2**20
+    if limit_mb is not None and size_mb > limit_mb:
+        raise InputError(f"{named} is {size_mb:.1f} MB, more than the limit of {number_text(limit_mb)} MB "
+                         "([output] input_size_limit_mb)")
+    return path.resolve()
+
+
+def refuse_special_file(path) -> None:
+    """`check_input_file` without a size limit, for a reader called on its own; a missing file is left to the
+    reader's own message."""
+    if os.path.lexists(path):
+        check_input_file(path)
+
+
+def shapefile_sidecars(path) -> list[Path]:
+    """The files GDAL reads with a shapefile (`SHAPEFILE_SIDECARS`, either letter case) that exist beside it."""
+    path = Path(path)
+    found = []
+    for suffix in SHAPEFILE_SIDECARS:
+        for candidate in (path.with_suffix(suffix), path.with_suffix(suffix.upper())):
+            if os.path.lexists(candidate) and candidate not in found:
+                found.append(candidate)
+    return found
+
+
+def check_coordinates(xy, labels, source: str, transformed: bool = False) -> None:
+    """An InputError naming the first place (row, vertex or feature) whose x or y is not finite or lies outside
+    +/-`COORDINATE_LIMIT_M`.
+
+    Parameters
+    ----------
+    xy : (n, 2) array         Plan positions in the project CRS. [m]
+    labels : sequence of str  One per position, e.g. 'building "B7"' or "vertex 3".
+    source : str              File (and layer) for messages.
+    transformed : bool        The positions were transformed from the layer's CRS (said in the message).
+    """
+    xy = np.asarray(xy, dtype=float).reshape(-1, 2)
+    bad = ~within(xy, ge=-COORDINATE_LIMIT_M, le=COORDINATE_LIMIT_M).all(axis=1)
+    if bad.any():
+        k = int(np.argmax(bad))
+        after = " after transformation to the project CRS" if transformed else ""
+        raise InputError(f"{source} {labels[k]}: x, y ({xy[k, 0]:g}, {xy[k, 1]:g}){after} must be finite numbers "
+                         f"{bounds_text(ge=-COORDINATE_LIMIT_M, le=COORDINATE_LIMIT_M, symbol=' m')}")
 
 
 def listing(names, limit: int = 20) -> str:
@@ -98,9 +228,10 @@ class CsvTable:
                 raise InputError(f"{where(self.path, row=int(line))}: column {shown(name)} is empty")
         return tuple(row[col] for row in self.cells)
 
-    def numbers(self, name: str, gt: float | None = None, ge: float | None = None) -> np.ndarray:
-        """Column `name` as floats; an empty, non-numeric or non-finite cell, or one not `> gt` / `>= ge`, is an
-        error naming the row and the column. [units of the column]"""
+    def numbers(self, name: str, gt: float | None = None, ge: float | None = None,
+                le: float | None = None) -> np.ndarray:
+        """Column `name` as floats; an empty, non-numeric or non-finite cell, or one not `> gt` / `>= ge`, or one
+        not `<= le`, is an error naming the row, the column and the bound. [units of the column]"""
         text = self.texts(name)
         values = np.empty(len(text))
         for r, cell in enumerate(text):
@@ -109,23 +240,21 @@ class CsvTable:
             except ValueError:
                 raise InputError(f"{where(self.path, row=int(self.lines[r]))}: column {shown(name)} is not a "
                                  f"number; got {shown(cell)}") from None
-        bad = ~np.isfinite(values)
-        if gt is not None:
-            bad |= ~(values > gt)
-        if ge is not None:
-            bad |= ~(values >= ge)
-        if bad.any():
-            r = int(np.argmax(bad))
-            bound = f" more than {gt:g}" if gt is not None else f" at least {ge:g}" if ge is not None else ""
-            kind = f"number{bound}" if bound else "finite number"
-            raise InputError(f"{where(self.path, row=int(self.lines[r]))}: column {shown(name)} must be a {kind}; "
-                             f"got {shown(text[r])}")
+        for bounds in (dict(gt=gt, ge=ge), dict(le=le)):
+            bad = ~within(values, **bounds)
+            if bad.any():
+                r = int(np.argmax(bad))
+                bound = bounds_text(**bounds)
+                kind = f"number {bound}" if bound else "finite number"
+                raise InputError(f"{where(self.path, row=int(self.lines[r]))}: column {shown(name)} must be a "
+                                 f"{kind}; got {shown(text[r])}")
         return values
 
 
 def read_csv(path) -> CsvTable:
     """Read a CSV file with one header line into a `CsvTable` (text cells; nothing converted yet)."""
     path = Path(path)
+    refuse_special_file(path)
     rows, lines = [], []
     try:
         with open(path, newline="", encoding="utf-8-sig") as stream:
@@ -165,7 +294,8 @@ def read_surface_points(path) -> Surface:
     no plan position given twice (to the millimetre)."""
     table = read_csv(path)
     table.require("x", "y", "z")
-    xyz = np.column_stack([table.numbers("x"), table.numbers("y"), table.numbers("z")])
+    xyz = np.column_stack([table.numbers("x"), table.numbers("y"), table.numbers("z", **LEVEL_RANGE)])
+    check_coordinates(xyz[:, :2], [f"row {line}" for line in table.lines], str(path))
     if len(xyz) < 3:
         raise InputError(f"{path}: {len(xyz)} surface point(s); need at least 3 not on one line")
     centred = xyz[:, :2] - xyz[:, :2].mean(axis=0)
@@ -196,8 +326,10 @@ def read_points(path) -> Points:
         if name in seen:
             raise InputError(f"{where(path, row=int(line))}: id {shown(name)} is already used on row {seen[name]}")
         seen[name] = int(line)
-    depth = table.numbers("depth_m", ge=0.0) if table.has("depth_m") else np.zeros(len(table))
-    return Points(ids=ids, x_m=table.numbers("x"), y_m=table.numbers("y"), depth_m=depth, source=str(path))
+    depth = table.numbers("depth_m", ge=0.0, le=DEPTH_LIMIT_M) if table.has("depth_m") else np.zeros(len(table))
+    x, y = table.numbers("x"), table.numbers("y")
+    check_coordinates(np.column_stack([x, y]), [f"row {line}" for line in table.lines], str(path))
+    return Points(ids=ids, x_m=x, y_m=y, depth_m=depth, source=str(path))
 
 
 # ---------------------------------------------------------------------------------------------------- alignments
@@ -229,10 +361,12 @@ def check_alignment(xy, v, vertical: str, source: str, labels) -> None:
     if n < 2:
         raise InputError(f"{source}: the alignment has {n} {'vertex' if n == 1 else 'vertices'}; a drive needs at "
                          "least 2")
+    check_coordinates(xy, labels, source)
     if vertical == "depth" and not np.all(v > 0):
         k = int(np.argmin(v > 0))
         raise InputError(f"{source} {labels[k]}: depth of the axis below the surface must be more than 0; "
                          f"got {v[k]:g}")
+    _check_vertical_values(v, vertical, source, labels)
     seg = np.diff(xy, axis=0)
     plan = np.hypot(seg[:, 0], seg[:, 1])
     short = plan < PLAN_TOLERANCE_M
@@ -252,6 +386,17 @@ def check_alignment(xy, v, vertical: str, source: str, labels) -> None:
         k = int(np.argmax(back)) + 1
         raise InputError(f"{source} {labels[k]}: the alignment turns {turn_deg[k - 1]:.1f} degrees in plan here "
                          f"({MAX_TURN_DEG:g} or more: it doubles back)")
+
+
+def _check_vertical_values(v, vertical: str, source: str, labels) -> None:
+    """An InputError naming the first vertex whose level (axis, invert) lies beyond +/-`LEVEL_LIMIT_M` or whose depth
+    lies deeper than `DEPTH_LIMIT_M`. [m]"""
+    what, bounds = (("depth of the axis below the surface", dict(gt=0.0, le=DEPTH_LIMIT_M)) if vertical == "depth"
+                    else (f"{vertical} level", LEVEL_RANGE))
+    bad = ~within(v, **bounds)
+    if bad.any():
+        k = int(np.argmax(bad))
+        raise InputError(f"{source} {labels[k]}: {what} must be {bounds_text(**bounds, symbol=' m')}; got {v[k]:g}")
 
 
 def read_alignment_csv(path) -> Alignment:
@@ -356,10 +501,14 @@ def read_gis_layer(path: Path, layer: str | None, layer_key: str, fid_as_index: 
     With `fid_as_index` the frame is indexed by the features' ids in the file (what a GIS shows), else 0..n-1.
     An unreadable or empty layer is an InputError naming the file and layer.
     """
+    refuse_special_file(path)
     chosen = choose_layer(path, layer, layer_key)
     source = f"{path} layer {shown(chosen)}"
     try:
-        frame = pyogrio.read_dataframe(path, layer=chosen, fid_as_index=fid_as_index)
+        with python_warnings.catch_warnings():
+            # a NaN coordinate makes shapely warn; the readers' own checks name the feature instead
+            python_warnings.filterwarnings("ignore", "invalid value encountered", RuntimeWarning)
+            frame = pyogrio.read_dataframe(path, layer=chosen, fid_as_index=fid_as_index)
     except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
         raise InputError(f"{source}: cannot be read: {exc}") from None
     if len(frame) == 0:

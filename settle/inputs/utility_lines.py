@@ -26,6 +26,13 @@ Attributes:
 With vertical = "axis" the lines must be 3-D and Z is the level of the pipe axis [m]; the depth at each vertex is the
 ground surface level there minus Z.
 
+Plausible values (our choice; beyond them a value is a mistake, an error naming the pipe): x, y finite and within
++/-`COORDINATE_LIMIT_M`, Z within +/-`LEVEL_LIMIT_M`, depths at most `DEPTH_LIMIT_M`, a plan length of at most
+`PIPE_LENGTH_LIMIT_M` and a segment length of at most `SEGMENT_LENGTH_LIMIT_M`.
+
+No other attribute of the layer is carried to the output: the `utilities` layer holds the pipe's id, material and
+results only.
+
 The defaults table (`MATERIAL_LIMITS`) holds, per material, the indicative values of ../shared/methods.md section 6.2.
 None of them was confirmed in a published source: each row says whether it is "common practice, no source" or
 "from memory", and where the sheet gives a range the lower (more cautious) end is taken. Where the sheet gives no number
@@ -44,13 +51,15 @@ import numpy as np
 import shapely
 
 from ..errors import InputError
-from .tables import (GIS_SUFFIXES, PLAN_TOLERANCE_M, listing, project_transformer, read_gis_layer, shown,
-                     single_line)
+from .tables import (DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE, PLAN_TOLERANCE_M, bounds_text, check_coordinates,
+                     listing, project_transformer, read_gis_layer, shown, single_line, within)
 
 VERTICALS = ("depth", "axis")  # depth_m attribute | Z is the pipe axis level
 SUFFIXES = tuple(s for s in GIS_SUFFIXES if s != ".shp")  # shapefiles cut attribute names to 10 characters
 DIAMETER_RANGE_MM = (10.0, 5000.0)  # outside this the value is almost surely in the wrong unit
 LEVEL_TOLERANCE_M = 0.001  # two levels closer than this are the same [m]
+PIPE_LENGTH_LIMIT_M = 50_000.0  # plan length of one pipe (our choice: a trunk main as one feature fits) [m]
+SEGMENT_LENGTH_LIMIT_M = 1000.0  # pipe length between joints (our choice: pipes are made in lengths of metres) [m]
 ALLOWABLE_KEYS = ("allowable_bending_strain_ue", "allowable_axial_strain_ue", "allowable_joint_rotation_deg",
                   "allowable_joint_opening_mm")
 REQUIRED_ATTRIBUTES = ("id", "material", "outer_diameter_mm")
@@ -216,6 +225,10 @@ def _segment_lengths(segment_length_m, n: int, labels: list[str]) -> np.ndarray:
         k = int(np.argmax(bad))
         raise InputError(f"{labels[k]}: segment_length_m must be more than 0 m (or empty for a continuous pipe); "
                          f"got {seg[k]:g}")
+    bad = seg > SEGMENT_LENGTH_LIMIT_M
+    if bad.any():
+        k = int(np.argmax(bad))
+        raise InputError(f"{labels[k]}: segment_length_m must be at most {SEGMENT_LENGTH_LIMIT_M:g} m; got {seg[k]:g}")
     return seg
 
 
@@ -232,6 +245,14 @@ def _axis_depths(lines_xy, depths_m, od: np.ndarray, labels: list[str]) -> tuple
         if not np.all(d > 0):
             raise InputError(f"{labels[k]}: depth_m must be more than 0 m (depth of the pipe axis below the "
                              f"surface); got {d[np.argmin(d > 0)]:g}")
+        if not np.all(d <= DEPTH_LIMIT_M):
+            raise InputError(f"{labels[k]}: depth_m must be at most {DEPTH_LIMIT_M:g} m (depth of the pipe axis below "
+                             f"the surface); got {d.max():g}")
+        check_coordinates(xy, [f"vertex {j}" for j in range(1, len(xy) + 1)], labels[k])
+        length = np.hypot(*np.diff(xy, axis=0).T).sum()
+        if length > PIPE_LENGTH_LIMIT_M:
+            raise InputError(f"{labels[k]}: the pipe is {length:.0f} m long in plan, more than "
+                             f"{PIPE_LENGTH_LIMIT_M:.0f} m; split it, or check the layer's CRS and units")
         if np.any(d < od[k] / 2000.0):
             raise InputError(f"{labels[k]}: the pipe axis lies {d.min():g} m below the surface, less than its radius "
                              f"({od[k] / 2000.0:g} m): the pipe would stand out of the ground (depth_m is to the axis)")
@@ -464,6 +485,12 @@ def _line_vertices(geometry_cell, label: str, transformer, options: UtilityReadO
     if bad.any():
         raise InputError(f"{label} vertex {int(np.argmax(bad)) + 1}: a coordinate is not a number"
                          + (" (or cannot be transformed to the project CRS)" if transformer is not None else ""))
+    check_coordinates(xyz[:, :2], [f"vertex {j}" for j in range(1, len(xyz) + 1)], label, transformer is not None)
+    bad = ~within(xyz[:, 2], **LEVEL_RANGE) if options.vertical == "axis" else np.zeros(len(xyz), dtype=bool)
+    if bad.any():
+        j = int(np.argmax(bad))
+        raise InputError(f"{label} vertex {j + 1}: the pipe axis level (Z) must be "
+                         f"{bounds_text(**LEVEL_RANGE, symbol=' m')}; got {xyz[j, 2]:g}")
     return _plan_vertices(xyz, options.vertical, label)
 
 
