@@ -19,6 +19,7 @@ from ..engine.field import movements_at_points, settlement_grid
 from ..inputs.ground import GroundModel
 from ..inputs.model import Project
 from ..inputs.route import build_drive
+from .resources import check_run_size
 from .results import Result
 
 
@@ -173,9 +174,12 @@ def face_checks(project: Project, ground: GroundModel, drives, progress, warning
 
 
 def run(project: Project | str | Path, progress=None) -> Result:
-    """Load (if given a path) and assess a project; one call for scripts and notebooks."""
+    """Load (if given a path) and assess a project; one call for scripts and notebooks. After the route and before
+    any heavy step, the size guard (`resources.check_run_size`) refuses a run too large for its memory limit."""
     if not isinstance(project, Project):
         from ..inputs.project_file import load_project
 
         project = load_project(project)
-    return Assessment(project, progress).greenfield().buildings().utilities().face().result
+    assessment = Assessment(project, progress).route()
+    check_run_size(project, assessment.drives, assessment.elements)
+    return assessment.greenfield().buildings().utilities().face().result
