@@ -5,6 +5,9 @@ Three panels against chainage, sharing it:
 2. cover from the surface (the bed in a river) to the crown, with the low-cover limit and low-cover stations shaded;
 3. the pressures at the crown: the minimum and maximum support, the band to hold between them (allowing for the
    operating tolerance), the blow-out stress and the Delft fracture pressure, with closed windows marked.
+
+The drive's and the layers' names are drawn literally (no math in "$"); characters the font lacks come as one
+warning (`gis_out.png.glyph_check`).
 """
 from __future__ import annotations
 
@@ -19,7 +22,7 @@ import numpy as np  # noqa: E402
 from settle.assessments.face_stations import CAUTION, FaceStations  # noqa: E402
 from settle.inputs.route import DriveResult  # noqa: E402
 
-from .png import save_png  # noqa: E402
+from .png import glyph_checked, save_png  # noqa: E402
 
 GROUND = "#8c6d46"
 WATER = "#3b7dd8"
@@ -36,6 +39,7 @@ def _runs(flag: np.ndarray):
     return list(zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1))
 
 
+@glyph_checked
 def face_section_png(stations: FaceStations, drive: DriveResult, path, layers=(), dpi: int = 130) -> Path:
     """Draw the longitudinal section and pressure window of one drive and write it as a PNG.
 
@@ -85,9 +89,9 @@ def _section_panel(sec, stations: FaceStations, drive: DriveResult, layers) -> N
         below = np.where(stations.surface_level_m > layer.top_level_m, layer.top_level_m, np.nan)
         sec.plot(c, below, color=GROUND, lw=0.6, alpha=0.7)
         sec.annotate(layer.name, (c[-1], layer.top_level_m), textcoords="offset points", xytext=(-3, 3),
-                     fontsize=6.5, color=GROUND, ha="right")
+                     fontsize=6.5, color=GROUND, ha="right", parse_math=False)
     sec.set_ylabel("level (m)")
-    sec.set_title(f"{stations.drive}: section and face support window")
+    sec.set_title(f"{stations.drive}: section and face support window", parse_math=False)
     sec.legend(loc="lower left", fontsize=7, ncol=3)
     sec.grid(alpha=0.3)
 

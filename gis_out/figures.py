@@ -20,6 +20,9 @@ words, and damage categories 2 and above are also written on the buildings, so c
 band colours match the GIS styles exactly when summary.json holds the run's contour levels
 (`grid.contour_levels_mm`); otherwise they are spread over the bands present.
 
+Names from the user (project, drives, buildings, pipes, the CRS) are drawn literally (`parse_math=False`: a "$" is
+a dollar sign, never math), and the characters the font lacks come as one warning per figure (`gis_out.png`).
+
 Where the outputs do not hold something a figure would show (ground levels along a drive that had no face check, the
 water level of a river), the figure says so rather than making it up.
 """
@@ -48,6 +51,7 @@ from shapely.ops import substring  # noqa: E402
 from settle.errors import InputError  # noqa: E402
 
 from . import styles  # noqa: E402
+from .png import glyph_checked  # noqa: E402
 from .png import save_png as _save_png  # noqa: E402
 
 # ------------------------------------------------------------------------------------------------------ palette
@@ -72,16 +76,28 @@ PNG_DPI = 150  # resolution of the figures [dots per inch]
 
 # ------------------------------------------------------------------------------------------------------ reading
 def read_summary(summary) -> dict:
-    """summary.json as a dict: `summary` is the dict itself or the path of the file."""
+    """summary.json as a dict: `summary` is the dict itself or the path of the file (an InputError when the file is
+    missing, unreadable, not JSON or not a JSON object)."""
     if isinstance(summary, dict):
         return summary
     path = Path(summary)
     if not path.is_file():
         raise InputError(f"{path}: no summary.json here; run `settle run` first")
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        summary = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
         raise InputError(f"{path}: cannot read the run summary ({exc})") from None
+    if not isinstance(summary, dict):
+        raise InputError(f"{path}: the run summary must be a JSON object ({{...}}); got {json_kind(summary)}")
+    return summary
+
+
+def json_kind(value) -> str:
+    """What a JSON value is, for a message: its kind and the start of its text."""
+    kind = {dict: "an object", list: "an array", str: "a string", bool: "true or false", type(None): "null"}.get(
+        type(value), "a number")
+    text = json.dumps(value)
+    return f"{kind} {text if len(text) <= 40 else text[:37] + '...'}"
 
 
 def layer_names(gpkg) -> set[str]:
@@ -364,7 +380,7 @@ def contour_levels(summary: dict):
 def _caution(fig, summary: dict, y: float = 0.008) -> None:
     text = summary.get("caution")
     if text:
-        fig.text(0.01, y, f"Caution. {text}", fontsize=7, color="0.25", wrap=True)
+        fig.text(0.01, y, f"Caution. {text}", fontsize=7, color="0.25", wrap=True, parse_math=False)
 
 
 def _nice(length: float) -> float:
@@ -403,6 +419,7 @@ def pipe_status_classes(utilities: gpd.GeoDataFrame) -> np.ndarray:
 
 
 # ------------------------------------------------------------------------------------------------------ plan map
+@glyph_checked
 def plan_map_png(gpkg, summary, path, dpi: int = PNG_DPI) -> Path:
     """Draw the plan of a run (settlement bands and contours, routes with chainage ticks, buildings by damage
     category, pipes by status, face stations with a narrow or closed window) and write it as a PNG.
@@ -539,10 +556,12 @@ def _plan_title_legend_caution(fig, ax, route: gpd.GeoDataFrame, axes: list[Driv
     """The map's title with the construction stage, the CRS under it, the legend beside it and the caution."""
     crs = _crs_text(route, info)
     ax.set_title(f"{info.get('project', '')}\nPlan: greenfield surface settlement{_stage_text(axes)}",
-                 fontsize=11, loc="left")
-    fig.text(0.06, 0.03, crs, fontsize=8, color="0.2")
-    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.70, 0.89), fontsize=7.5, frameon=True,
-               title="Legend", title_fontsize=9, alignment="left")
+                 fontsize=11, loc="left", parse_math=False)
+    fig.text(0.06, 0.03, crs, fontsize=8, color="0.2", parse_math=False)
+    legend = fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.70, 0.89), fontsize=7.5, frameon=True,
+                        title="Legend", title_fontsize=9, alignment="left")
+    for text in legend.get_texts():  # the drives' names among them
+        text.set_parse_math(False)
     _caution(fig, info)
 
 
@@ -642,7 +661,7 @@ def _plan_utilities(ax, pipes: gpd.GeoDataFrame) -> list:
         for k in flagged:
             p = pipes.geometry.iloc[k].interpolate(0.5, normalized=True)
             ax.text(p.x, p.y, str(pipes["id"].iloc[k]), fontsize=6, ha="left", va="bottom", zorder=7,
-                    color=colours.get(int(cls[k]), "k"),
+                    color=colours.get(int(cls[k]), "k"), parse_math=False,
                     bbox=dict(boxstyle="round,pad=0.1", fc="white", ec="none", alpha=0.7))
     return handles
 
@@ -662,6 +681,7 @@ def _plan_face(ax, stations: gpd.GeoDataFrame) -> list:
 
 
 # ------------------------------------------------------------------------------------------ longitudinal section
+@glyph_checked
 def longitudinal_section_png(gpkg, summary, drive: str, path, dpi: int = PNG_DPI) -> Path:
     """Draw the longitudinal section of one drive and write it as a PNG.
 
@@ -715,7 +735,8 @@ def longitudinal_section_png(gpkg, summary, drive: str, path, dpi: int = PNG_DPI
                          fontsize=7)
         panels[-1].set_xlabel("chainage along the axis (m)")
         panels[-1].set_xlim(axis.start_m, axis.end_m)
-        sec.set_title(f"{info.get('project', '')}\nLongitudinal section: {axis.name}", fontsize=10, loc="left")
+        sec.set_title(f"{info.get('project', '')}\nLongitudinal section: {axis.name}", fontsize=10, loc="left",
+                      parse_math=False)
         fig.tight_layout(rect=(0, 0.03, 1, 1))
         _caution(fig, info)
     return save_png(fig, path, dpi)
@@ -892,6 +913,7 @@ def transverse_section(gpkg, names: set[str], axis: DriveAxis, chainage_m: float
     return Section(float(chainage_m), offset[inside], settlement[inside], strain[inside], w, blocks, depth)
 
 
+@glyph_checked
 def transverse_sections_png(gpkg, summary, drive: str, chainages_m, path, half_width_m: float | None = None,
                             dpi: int = PNG_DPI) -> Path:
     """Draw transverse sections across one drive at the chosen chainages and write them as one PNG.
@@ -948,7 +970,7 @@ def transverse_sections_png(gpkg, summary, drive: str, chainages_m, path, half_w
     with _closed_on_failure(fig):
         head, body, foot = fig.subfigures(3, 1, height_ratios=[0.9, 7.0 * rows, 0.4])
         head.text(0.01, 0.5, f"{info.get('project', '')}\nTransverse sections across {axis.name}\noffset from the "
-                  "axis, + to the right looking up-chainage", fontsize=9.5, va="center")
+                  "axis, + to the right looking up-chainage", fontsize=9.5, va="center", parse_math=False)
         subs = body.subfigures(rows, cols, squeeze=False).ravel()
         for sub, sec in zip(subs, sections):
             _draw_section(sub, sec, axis, info)
@@ -969,7 +991,7 @@ def _draw_section(sub, sec: Section, axis: DriveAxis, info: dict) -> None:
         top.add_patch(plt.Rectangle((a, base), b - a, height - base, facecolor=colour, edgecolor="0.15", lw=0.6,
                                     linestyle="--" if cat < 0 else "-"))
         top.text(0.5 * (a + b), height, f"{bid}\ncat. {cat}" if cat >= 0 else f"{bid}\nnot assessed",
-                 ha="center", va="bottom", fontsize=6)
+                 ha="center", va="bottom", fontsize=6, parse_math=False)
     if np.isfinite(sec.axis_depth_m):
         d = axis.outer_diameter_m
         top.add_patch(Ellipse((0.0, -sec.axis_depth_m), d, d, facecolor=TUNNEL, edgecolor="k", lw=0.6, alpha=0.7))

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from pathlib import Path
 
 from settle.assessments.face_stations import CAUTION as FACE_CAUTION
@@ -19,17 +20,52 @@ from .geopackage import write_text_atomic
 OPERATOR_NOTE = ("Hold the face pressure between hold_from and hold_to (kPa, at the crown; at the axis through the "
                  "slurry column); the band allows for the operating tolerance. Empty where the window is closed.")
 
+#: The first characters that make a spreadsheet read a cell as a formula (or shift it into one).
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+#: A number written as text the way the tables format numbers: "-5.00", "12", "1.5e-05".
+PLAIN_NUMBER = re.compile(r"-?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?")
+
+
+def safe_cell(value):
+    """A cell as a spreadsheet should show it: text starting with a formula character (=, +, -, @, tab, carriage
+    return) gets a leading apostrophe so it is read as text; numbers, and text that is a plain number such as
+    "-5.00", are left as they are."""
+    if isinstance(value, str) and value.startswith(FORMULA_STARTS) and not PLAIN_NUMBER.fullmatch(value):
+        return "'" + value
+    return value
+
 
 def csv_text(comments, fieldnames, rows) -> str:
-    """A CSV text: each comment on a line of its own after "# ", then (when there are fields) the header and rows."""
+    """A CSV text: each comment on a line of its own after "# ", then (when there are fields) the header and rows,
+    every cell through `safe_cell`. Lines end in "\n"; a cell holding a line break ("\r" too) is quoted."""
     out = io.StringIO()
     for comment in comments:
         out.write(f"# {comment}\n")
     if fieldnames:
-        writer = csv.DictWriter(out, fieldnames=list(fieldnames), lineterminator="\n")
-        writer.writeheader()
-        writer.writerows(rows)
+        fields = list(fieldnames)
+        line = _csv_line_writer()
+        out.write(line(fields))
+        for row in rows:
+            extra = [k for k in row if k not in fields]
+            if extra:
+                raise ValueError(f"row has fields {extra} beyond the table's {fields}")
+            out.write(line([safe_cell(row.get(k, "")) for k in fields]))
     return out.getvalue()
+
+
+def _csv_line_writer():
+    """A function turning a list of cells into one CSV line ending in "\n", quoting every cell that holds "\r" or
+    "\n" (the csv module quotes only the characters of its line terminator, so it writes with "\r\n")."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\r\n")
+
+    def line(cells) -> str:
+        buffer.seek(0)
+        buffer.truncate()
+        writer.writerow(cells)
+        return buffer.getvalue()[:-2] + "\n"
+
+    return line
 
 
 def rows_csv_text(rows: list[dict]) -> str:
