@@ -14,6 +14,7 @@ from __future__ import annotations
 import contextlib
 import glob
 import os
+import re
 import sqlite3
 import time
 import uuid
@@ -75,6 +76,12 @@ def _final_path(path, suffix: str | None) -> str:
     return final
 
 
+def _plain(name: str) -> str:
+    """A file name with every character but letters, digits, "." and "-" made "_": temporary files get such names,
+    because GDAL reads some characters of a path (";", for one) as options. The final name is given by a rename."""
+    return re.sub(r"[^\w.-]", "_", name, flags=re.ASCII)
+
+
 def sweep_stale_temporaries(final, max_age_s: float = STALE_AFTER_S) -> list[str]:
     """Remove temporary files of earlier, interrupted writes of `final` that are older than `max_age_s`. [s]
 
@@ -82,7 +89,7 @@ def sweep_stale_temporaries(final, max_age_s: float = STALE_AFTER_S) -> list[str
     running now and are kept. Returns the paths removed.
     """
     folder, base = os.path.split(os.path.abspath(os.fspath(final)))
-    stem = os.path.join(glob.escape(folder), "." + glob.escape(base) + ".")
+    stem = os.path.join(glob.escape(folder), "." + glob.escape(_plain(base)) + ".")
     now, removed = time.time(), []
     for p in sorted(set(glob.glob(stem + "*.tmp.gpkg*") + glob.glob(stem + "*.tmp"))):
         with contextlib.suppress(FileNotFoundError):
@@ -215,7 +222,7 @@ def check_written(path, layer_names) -> None:
 
 
 def write_geopackage(path, layers: dict[str, gpd.GeoDataFrame], *,
-                     extra: Callable[[str], None] | None = None) -> Path:
+                     extra: Callable[[str], None] | None = None, last_change: str | None = None) -> Path:
     """Write layers to a GeoPackage, replacing any earlier file at `path` in one atomic step.
 
     Parameters
@@ -227,6 +234,10 @@ def write_geopackage(path, layers: dict[str, gpd.GeoDataFrame], *,
     extra : callable, optional
                               Called with the temporary file's path after the layers are written and before the
                               checks, to add more tables (e.g. styles) inside the same atomic write.
+    last_change : str, optional
+                              The time every layer's gpkg_contents.last_change holds, "YYYY-MM-DDTHH:MM:SS.SSSZ"
+                              (UTC). Default: the time of writing. A fixed value makes the file reproducible byte
+                              for byte.
 
     Returns
     -------
@@ -245,13 +256,14 @@ def write_geopackage(path, layers: dict[str, gpd.GeoDataFrame], *,
     sweep_stale_temporaries(final)
     folder, base = os.path.split(final)
     # Same folder (same file system, so the rename is atomic) and a .gpkg suffix (GDAL picks the driver from it).
-    tmp = os.path.join(folder, f".{base}.{uuid.uuid4().hex}.tmp.gpkg")
+    tmp = os.path.join(folder, f".{_plain(base)}.{uuid.uuid4().hex}.tmp.gpkg")
     try:
-        for name, gdf in layers.items():
-            pyogrio.write_dataframe(gdf, tmp, layer=name, driver="GPKG", geometry_type=_geometry_type(name, gdf),
-                                    promote_to_multi=False, dataset_options=DATASET_OPTIONS)
-        if extra is not None:
-            extra(tmp)
+        with _gdal_current_date(last_change):
+            for name, gdf in layers.items():
+                pyogrio.write_dataframe(gdf, tmp, layer=name, driver="GPKG", geometry_type=_geometry_type(name, gdf),
+                                        promote_to_multi=False, dataset_options=DATASET_OPTIONS)
+            if extra is not None:
+                extra(tmp)
         check_written(tmp, list(layers))
         _fsync_file(tmp)
         _replace(tmp, final, database=True)
@@ -259,6 +271,20 @@ def write_geopackage(path, layers: dict[str, gpd.GeoDataFrame], *,
         _remove_quietly([tmp, *(tmp + s for s in SIDE_SUFFIXES)])
         raise
     return Path(final)
+
+
+@contextlib.contextmanager
+def _gdal_current_date(when: str | None):
+    """GDAL's OGR_CURRENT_DATE (the gpkg_contents.last_change it writes) set to `when` inside the block."""
+    if when is None:
+        yield
+        return
+    before = pyogrio.get_gdal_config_option("OGR_CURRENT_DATE")
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": when})
+    try:
+        yield
+    finally:
+        pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": before})
 
 
 def write_text_atomic(path, text: str, encoding: str = "utf-8") -> Path:
@@ -276,7 +302,7 @@ def write_text_atomic(path, text: str, encoding: str = "utf-8") -> Path:
     final = _final_path(path, None)
     sweep_stale_temporaries(final)
     folder, base = os.path.split(final)
-    tmp = os.path.join(folder, f".{base}.{uuid.uuid4().hex}.tmp")
+    tmp = os.path.join(folder, f".{_plain(base)}.{uuid.uuid4().hex}.tmp")
     try:
         # O_EXCL: never follow or reuse an existing file; mode 0o666 so the umask applies as for any new file.
         fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0), 0o666)

@@ -17,12 +17,15 @@ given (they are not in the outputs). Sections, numbered as in `SECTIONS`:
 
 An assessment the run did not make (no buildings, no utilities, no face check) is reported as "not assessed".
 
-Reproducibility: the run date is the only date in the report (the date the GeoPackage was written, unless given);
-the PDF carries no creation time, so the same outputs and run date give the same file.
+Reproducibility: the run date is the only date in the report: the one given to the report, else the one given to the
+run (run.json records it), else none ("undated run"). The PDF carries no creation time, so the same outputs and run
+date give the same file.
 
-Text: pages are laid out with `fig.text`. Where all of the report's text is in the Windows-1252 character set (the
-usual case), it is set in the PDF core fonts (Helvetica, Courier), which any PDF reader extracts as plain text;
-otherwise in the embedded DejaVu fonts with a Unicode map, so no character is lost.
+Text: pages are laid out with `fig.text`, every line literally (a "$" in a name is a dollar sign, never math). Where
+all of the report's text is in the Windows-1252 character set (the usual case), it is set in the PDF core fonts
+(Helvetica, Courier), which any PDF reader extracts as plain text; otherwise in the embedded DejaVu fonts with a
+Unicode map, so no character is lost; the characters those fonts lack (and those the figures' font lacks) come as
+one warning for the whole report (`gis_out.png.glyph_check`).
 
 Units and signs as in the outputs: settlement positive downward [mm], horizontal strain tensile positive, pressures at
 the crown [kPa], chainage along the 3-D axis [m].
@@ -31,9 +34,10 @@ from __future__ import annotations
 
 import datetime as dt
 import inspect
+import math
+import json
 import os
 import re
-import sqlite3
 import tempfile
 import textwrap
 import uuid
@@ -51,6 +55,7 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from settle.errors import InputError  # noqa: E402
 
 from . import figures  # noqa: E402
+from .png import glyph_check, note_missing_glyphs  # noqa: E402
 
 SECTIONS = ("1 Inputs", "2 Methods and references", "3 Results", "4 Assumptions, limits and cautions")
 BUILDING_REPORT_CATEGORY = 2  # buildings in this damage category and above are tabled
@@ -89,11 +94,64 @@ class RunOutputs:
     frames: dict  # layer name -> GeoDataFrame (route, buildings, utilities, face_stations when present)
 
 
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+#: The kinds of value the report reads from summary.json, by the words its messages use.
+SUMMARY_KINDS = {
+    "text": lambda v: isinstance(v, str),
+    "an object": lambda v: isinstance(v, dict),
+    "an object or null": lambda v: v is None or isinstance(v, dict),
+    "an array": lambda v: isinstance(v, list),
+    "a number": _is_number,
+    "a positive number": lambda v: _is_number(v) and math.isfinite(v) and v > 0,
+    "an array of numbers": lambda v: isinstance(v, list) and all(map(_is_number, v)),
+}
+
+#: What the report reads from summary.json: key (its parts joined by ".") -> (kind, required). A key below another
+#: is checked only where the one above it is an object, and "required" then means it must be there.
+SUMMARY_KEYS = {
+    "project": ("text", True), "caution": ("text", True), "crs": ("text", False),
+    "grid": ("an object", True), "grid.spacing_m": ("a positive number", True),
+    "grid.threshold_mm": ("a number", False), "grid.contour_levels_mm": ("an array of numbers", False),
+    "outputs": ("an object", False), "warnings": ("an array", False), "volume_check": ("an object or null", False),
+    **{k: v for peak, value in (("max_settlement", "settlement_mm"), ("max_tilt", "tilt"),
+                                ("max_tensile_strain", "strain_ue"), ("max_compressive_strain", "strain_ue"))
+       for k, v in ((peak, ("an object or null", False)), (f"{peak}.{value}", ("a number", True)),
+                    (f"{peak}.x_m", ("a number", True)), (f"{peak}.y_m", ("a number", True)))},
+    "points": ("an object or null", False), "points.count": ("a number", True),
+    "points.max_settlement": ("an object or null", False), "points.max_settlement.settlement_mm": ("a number", True),
+    "inputs": ("an object or null", False),
+}
+
+
+def check_summary(summary: dict, path) -> dict:
+    """The run's summary when it holds what the report reads (`SUMMARY_KEYS`); else an InputError naming the file,
+    the key and what it holds."""
+    for key, (kind, required) in SUMMARY_KEYS.items():
+        *above, name = key.split(".")
+        parent = summary
+        for part in above:
+            parent = parent.get(part) if isinstance(parent, dict) else None
+        if not isinstance(parent, dict):
+            continue
+        if name not in parent:
+            if required:
+                raise InputError(f"{path}: has no {key}, which the report needs; is it the summary.json of "
+                                 "`settle run`?")
+            continue
+        if not SUMMARY_KINDS[kind](parent[name]):
+            raise InputError(f"{path}: {key} must be {kind}; got {figures.json_kind(parent[name])}")
+    return summary
+
+
 def read_outputs(out_dir, stem: str) -> RunOutputs:
-    """The GeoPackage and summary of a finished run; an InputError naming the file when one is missing."""
+    """The GeoPackage and summary of a finished run; an InputError naming the file when one is missing, or when
+    summary.json is not a JSON object holding what the report reads (`check_summary`)."""
     out = Path(out_dir)
     gpkg = out / f"{stem}.gpkg"
-    summary = figures.read_summary(out / "summary.json")
+    summary = check_summary(figures.read_summary(out / "summary.json"), out / "summary.json")
     layers = figures.layer_names(gpkg)
     if "route" not in layers:
         raise InputError(f"{gpkg}: has no route layer; is it the output of `settle run`?")
@@ -102,21 +160,23 @@ def read_outputs(out_dir, stem: str) -> RunOutputs:
     return RunOutputs(out, stem, gpkg, summary, layers, frames)
 
 
-def run_date_of(gpkg) -> dt.date:
-    """The date the run wrote its GeoPackage: the latest `last_change` of gpkg_contents (UTC)."""
+def run_date_of(folder) -> dt.date | None:
+    """The run date the run was given (`settle run --date`), as its run.json records it; None when it was given none
+    (or the folder has no run.json)."""
     try:
-        with sqlite3.connect(f"file:{Path(gpkg).resolve()}?mode=ro", uri=True) as con:
-            (stamp,) = con.execute("SELECT max(last_change) FROM gpkg_contents").fetchone()
-    except sqlite3.Error as exc:
-        raise InputError(f"{gpkg}: cannot read gpkg_contents for the run date ({exc})") from None
-    if not stamp:
-        raise InputError(f"{gpkg}: gpkg_contents has no last_change; give the run date")
-    return dt.date.fromisoformat(str(stamp)[:10])
+        manifest = json.loads((Path(folder) / "run.json").read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError):
+        return None
+    day = manifest.get("run_date") if isinstance(manifest, dict) else None
+    try:
+        return dt.date.fromisoformat(day) if isinstance(day, str) else None
+    except ValueError:
+        return None
 
 
-def _run_date(run_date, gpkg) -> dt.date:
+def _run_date(run_date, folder) -> dt.date | None:
     if run_date is None:
-        return run_date_of(gpkg)
+        return run_date_of(folder)
     if isinstance(run_date, dt.datetime):
         return run_date.date()
     if isinstance(run_date, dt.date):
@@ -125,6 +185,11 @@ def _run_date(run_date, gpkg) -> dt.date:
         return dt.date.fromisoformat(str(run_date))
     except ValueError:
         raise InputError(f"run date must be a date as YYYY-MM-DD; got {run_date!r}") from None
+
+
+def _dated(date: dt.date | None) -> str:
+    """How the report names its run: "run of 2026-12-01", or "undated run"."""
+    return f"run of {date.isoformat()}" if date else "undated run"
 
 
 # ------------------------------------------------------------------------------------------ rows to report
@@ -308,7 +373,7 @@ def _title_blocks(run: RunOutputs, date: dt.date, inputs: dict | None) -> list[B
     for k, v in outputs.items():
         if isinstance(v, list):
             files += [f"{len(v)} style files (.qml, .sld)"] if k == "styles" else [str(x) for x in v]
-    lines = [f"Run date: {date.isoformat()}",
+    lines = [f"Run date: {date.isoformat() if date else 'not given (settle run --date YYYY-MM-DD dates a run)'}",
              f"Project file: {inputs['project_file'] if inputs else 'not given to the report'}",
              f"Coordinate reference system: {s.get('crs', '-')}",
              f"Outputs of the run: {', '.join(dict.fromkeys(files))}",
@@ -763,8 +828,8 @@ def _core_fonts_suffice(blocks: list[Block]) -> bool:
 class _Renderer:
     """Lays the blocks out on A4 pages with fig.text, top down."""
 
-    def __init__(self, pdf: PdfPages, header: str):
-        self.pdf, self.header = pdf, header
+    def __init__(self, pdf: PdfPages, header: str, check_glyphs: bool = False):
+        self.pdf, self.header, self.check_glyphs = pdf, header, check_glyphs
         self.fig = None
         self.page = 0
         self.y = 0.0  # inches from the top of the page
@@ -774,15 +839,18 @@ class _Renderer:
         self.fig = plt.figure(figsize=size)
         self.page += 1
         w, h = size
-        self.fig.text(MARGIN_IN / w, 1 - 0.4 / h, self.header, fontsize=7.5, color="0.35", weight="medium")
+        self.fig.text(MARGIN_IN / w, 1 - 0.4 / h, self.header, fontsize=7.5, color="0.35", weight="medium",
+                      parse_math=False)
         self.fig.text(1 - MARGIN_IN / w, 0.4 / h, f"page {self.page}", fontsize=7.5, color="0.35", ha="right",
-                      weight="medium")
+                      weight="medium", parse_math=False)
         self.fig.text(MARGIN_IN / w, 0.4 / h, "Greenfield estimates for planning: see section 4.", fontsize=7.5,
-                      color="0.35", weight="medium")
+                      color="0.35", weight="medium", parse_math=False)
         self.y = 0.8
 
     def _finish(self):
         if self.fig is not None:
+            if self.check_glyphs:
+                note_missing_glyphs(self.fig)
             self.pdf.savefig(self.fig)
             plt.close(self.fig)
             self.fig = None
@@ -794,7 +862,7 @@ class _Renderer:
         self.y += step
         w, h = self.fig.get_size_inches()
         self.fig.text(MARGIN_IN / w, 1 - self.y / h, text, fontsize=size, family=family, weight=weight,
-                      color=colour, va="baseline")
+                      color=colour, va="baseline", parse_math=False)
 
     def render(self, blocks: list[Block]):
         for b in blocks:
@@ -834,7 +902,7 @@ class _Renderer:
         w, h = size
         caption = textwrap.wrap(b.text, int(0.9 * WRAP_CHARS * (w - 2 * MARGIN_IN) / (A4[0] - 2 * MARGIN_IN)))  # bold
         for k, line in enumerate(caption):
-            self.fig.text(MARGIN_IN / w, 1 - (0.8 + 0.17 * k) / h, line, fontsize=9, weight="bold")
+            self.fig.text(MARGIN_IN / w, 1 - (0.8 + 0.17 * k) / h, line, fontsize=9, weight="bold", parse_math=False)
         top = 0.95 + 0.17 * len(caption)
         ax = self.fig.add_axes([MARGIN_IN / w, 0.75 / h, 1 - 2 * MARGIN_IN / w, 1 - (0.75 + top) / h])
         ax.imshow(img, interpolation="none")
@@ -856,16 +924,16 @@ def _atomic_pdf(path: Path, draw) -> Path:
 
 # ---------------------------------------------------------------------------------------------- the report
 def write_report(out_dir, stem: str, run_date=None, project=None, sections_chainage_m=None,
-                 keep_figures: bool = False) -> Path:
-    """Write the assessment report of a finished run as `<out_dir>/<stem>-report.pdf`.
+                 keep_figures: bool = False, pdf_folder=None) -> Path:
+    """Write the assessment report of a finished run as `<out_dir>/<stem>-report.pdf` (or in `pdf_folder`).
 
     Parameters
     ----------
     out_dir : str or Path          The run's output folder (holding `<stem>.gpkg` and `summary.json`).
     stem : str                     The project file's stem, which names the GeoPackage.
     run_date : date, datetime or "YYYY-MM-DD", optional
-                                   The date printed in the report. Default: the date the run wrote its GeoPackage
-                                   (gpkg_contents.last_change, UTC).
+                                   The date printed in the report. Default: the run date given to the run
+                                   (run.json's run_date); none when it was given none.
     project : settle.model.Project or path, optional
                                    The project the run was made from, to list its inputs (ground layers, volume loss
                                    per reach, settings) that the outputs do not hold; read again with
@@ -878,6 +946,9 @@ def write_report(out_dir, stem: str, run_date=None, project=None, sections_chain
                                    along its axis is largest.
     keep_figures : bool            Also keep the figures as PNGs in out_dir (`<stem>-plan.png`,
                                    `<stem>-section-<n>-<drive>.png`, `<stem>-transverse-<n>-<drive>.png`).
+    pdf_folder : str or Path, optional
+                                   The folder to write the PDF (and the kept figures) into, when not out_dir; it
+                                   must exist.
 
     Returns
     -------
@@ -889,31 +960,55 @@ def write_report(out_dir, stem: str, run_date=None, project=None, sections_chain
                 a section chainage outside every drive.
     """
     run = read_outputs(out_dir, stem)
-    date = _run_date(run_date, run.gpkg)
-    inputs = run.summary.get("inputs")  # when summary.json carries project_inputs(project)
-    if project is not None:
-        if not hasattr(project, "drives"):
-            from settle.inputs.project_file import load_project
-
-            project = load_project(project)
-        inputs = project_inputs(project)
-        ran = list(run.frames["route"]["drive"])
-        if project.name != run.summary.get("project") or [d.name for d in project.drives] != ran:
-            raise InputError(f"{inputs['project_file']}: is not the project of the run in {run.out_dir} (project "
-                             f"{project.name!r} with drives {[d.name for d in project.drives]}; the run has "
-                             f"{run.summary.get('project')!r} with drives {ran})")
-        grid = dict(run.summary.get("grid") or {})
-        if "contour_levels_mm" not in grid:  # so the figures colour the bands as the GIS styles do
-            grid["contour_levels_mm"] = list(project.output.contour_levels_mm)
-            run.summary = {**run.summary, "grid": grid}
+    date = _run_date(run_date, run.out_dir)
+    inputs = _report_inputs(run, project)
     sections = _section_chainages(run, sections_chainage_m)
-    final = (run.out_dir / f"{stem}-report.pdf").resolve()
-    with tempfile.TemporaryDirectory(dir=run.out_dir, prefix=f".{stem}-figures-") as tmp:
-        folder = run.out_dir if keep_figures else Path(tmp)
+    final = (Path(pdf_folder or run.out_dir) / f"{stem}-report.pdf").resolve()
+    with glyph_check(f"report {final.name}"):
+        return _write_pdf(run, date, inputs, sections, final, keep_figures)
+
+
+def _report_inputs(run: RunOutputs, project) -> dict | None:
+    """The inputs the report lists: from the project when given (it must be the run's; its contour levels complete
+    the summary's grid), else from summary.json's "inputs" when it has them (they must be in the form of
+    `project_inputs`), else None."""
+    if project is None:
+        inputs = run.summary.get("inputs")
+        if inputs:
+            try:
+                _inputs_blocks(run, inputs)
+            except (KeyError, TypeError, ValueError, AttributeError) as exc:
+                raise InputError(f"{run.out_dir / 'summary.json'}: inputs is not in the form the report writes "
+                                 f"(project_inputs): {type(exc).__name__} {exc}") from None
+        return inputs
+    if not hasattr(project, "drives"):
+        from settle.inputs.project_file import load_project
+
+        project = load_project(project)
+    inputs = project_inputs(project)
+    ran = list(run.frames["route"]["drive"])
+    if project.name != run.summary.get("project") or [d.name for d in project.drives] != ran:
+        raise InputError(f"{inputs['project_file']}: is not the project of the run in {run.out_dir} (project "
+                         f"{project.name!r} with drives {[d.name for d in project.drives]}; the run has "
+                         f"{run.summary.get('project')!r} with drives {ran})")
+    grid = dict(run.summary.get("grid") or {})
+    if "contour_levels_mm" not in grid:  # so the figures colour the bands as the GIS styles do
+        grid["contour_levels_mm"] = list(project.output.contour_levels_mm)
+        run.summary = {**run.summary, "grid": grid}
+    return inputs
+
+
+def _write_pdf(run: RunOutputs, date: dt.date, inputs: dict | None, sections: dict, final: Path,
+               keep_figures: bool) -> Path:
+    """Draw the figures (in a temporary folder, unless kept beside the PDF), lay out the report and write it to
+    `final`."""
+    stem = run.stem
+    with tempfile.TemporaryDirectory(dir=final.parent, prefix=f".{stem}-figures-") as tmp:
+        folder = final.parent if keep_figures else Path(tmp)
         figure_paths = _figures(run, folder, sections)
         blocks = (_title_blocks(run, date, inputs) + _inputs_blocks(run, inputs) + _methods_blocks(run)
                   + _results_blocks(run, figure_paths) + _caution_blocks(run))
-        header = f"{run.summary.get('project', stem)}: ground movement assessment, run of {date.isoformat()}"
+        header = f"{run.summary.get('project', stem)}: ground movement assessment, {_dated(date)}"
         core = _core_fonts_suffice(blocks + [Block("text", header)])
         rc = {"pdf.use14corefonts": core, "pdf.fonttype": 42, "font.family": "sans-serif"}
         if core:
@@ -923,11 +1018,11 @@ def write_report(out_dir, stem: str, run_date=None, project=None, sections_chain
         from settle.version import __version__
 
         metadata = {"Title": f"{run.summary.get('project', stem)}: ground movement assessment",
-                    "Subject": f"run of {date.isoformat()}", "Creator": f"settle {__version__}",
+                    "Subject": _dated(date), "Creator": f"settle {__version__}",
                     "CreationDate": None}
 
         def draw(path):
             with matplotlib.rc_context(rc), PdfPages(path, metadata=metadata) as pdf:
-                _Renderer(pdf, header).render(blocks)
+                _Renderer(pdf, header, check_glyphs=not core).render(blocks)
 
         return _atomic_pdf(final, draw)

@@ -1,23 +1,36 @@
 """The run folder: every file `settle run`, `settle fit` and `settle report` leave in `--out`.
 
-This is the one place that decides which files a run delivers and under which names; each file is written by the
-module of its kind (GeoPackage and styles, CSV tables, figures, PDF), always through a temporary file and an atomic
-rename, so a failed run never damages an earlier good result. The command line only calls these functions.
+This is the one place that decides which files a run delivers and under which names. Each file is written by the
+module of its kind (GeoPackage and styles, CSV tables, figures, PDF) into a staging folder, and the set is swapped in
+at the end as one (`gis_out.run_set`): a run killed or failing at any moment leaves the complete earlier set, or the
+complete new one, never a mix. run.json records what made the set: the tool version, the command and its options,
+the sha256 of every input read and of every output. The same inputs give the same bytes: the only date a set carries
+is the run date the user gives (`--date`); without one, the GeoPackage's last_change is 1970-01-01T00:00:00Z.
+The command line only calls these functions.
 """
 from __future__ import annotations
 
 import json
+import os
 import re
+import shlex
 from pathlib import Path
 
 from settle.errors import InputError
+from settle.inputs.file_hashes import sha256_of
 from settle.procedure.monitoring_steps import FitOutcome, Monitoring
 from settle.procedure.results import Result
-from settle.procedure.summary import summarise
+from settle.procedure.run_record import RunRecord
+from settle.procedure.summary import CAUTION, summarise
+from settle.version import __version__
 
 from .frames import frames
-from .geopackage import write_geopackage, write_text_atomic
+from .geopackage import OutputError, write_geopackage, write_text_atomic
+from .run_set import MANIFEST, RunSet, changed_files, read_manifest
 from .tables import operator_csv_text, write_rows_csv
+
+#: gpkg_contents.last_change of a run given no date: a fixed time, so the file is reproducible.
+UNDATED_LAST_CHANGE = "1970-01-01T00:00:00.000Z"
 
 
 def check_out_folder(out) -> Path:
@@ -28,46 +41,99 @@ def check_out_folder(out) -> Path:
     return out
 
 
+def output_stem(project_file) -> str:
+    """The stem that names a run's outputs (`<stem>.gpkg`): the project file's name without its suffix. InputError
+    when it holds a control character (a newline, a tab), which would make file names that scripts cannot use."""
+    stem = Path(project_file).stem
+    bad = sorted({c for c in stem if ord(c) < 32 or ord(c) == 127})
+    if bad or not stem:
+        shown = ", ".join(f"U+{ord(c):04X}" for c in bad) or "an empty name"
+        raise InputError(f"{str(project_file)!r}: the project file's name names the outputs and must not hold control "
+                         f"characters; it holds {shown}: rename the file")
+    return stem
+
+
 def slug(name: str) -> str:
     """A drive's name as a file name part: lower case letters and digits joined by "-"."""
     return re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "drive"
 
 
 def write_run(result: Result, out: Path, stem: str, monitoring: Monitoring | None = None,
-              report: bool = False) -> dict:
-    """Write a run's outputs into `out` (created if missing) and return its summary (summary.json's content).
+              report: bool = False, record: RunRecord | None = None) -> dict:
+    """Write a run's outputs into `out` (created if missing) as one set and return its summary (summary.json's
+    content).
 
     The GeoPackage `<stem>.gpkg` with its styles (and the .qml/.sld files beside it), the optional settlement
-    GeoTIFF, buildings.csv, utilities.csv, the face pressure table and sections, the monitored sections, then
-    summary.json, and last the PDF report when asked.
+    GeoTIFF, buildings.csv, utilities.csv, the face pressure table and sections, the monitored sections,
+    summary.json, the PDF report when asked, and run.json.
     """
+    record = record or RunRecord()
+    with _writing(out) as run_set:
+        summary = _write_run_files(result, run_set.stage, stem, monitoring, report, record)
+        run_set.commit(_manifest("run", record, out))
+    return summary
+
+
+def _write_run_files(result: Result, stage: Path, stem: str, monitoring, report: bool, record: RunRecord) -> dict:
+    """Every file of a run, written into the staging folder; the summary."""
     project = result.project
     layers = frames(result)
     if monitoring:
         layers["readings"] = _readings_layer(project, monitoring)
-    out.mkdir(parents=True, exist_ok=True)
-    outputs = _write_layers(result, layers, out, stem)
-    outputs.update(_write_tables(result, out))
+    outputs = _write_layers(result, layers, stage, stem, record.run_date)
+    outputs.update(_write_tables(result, stage))
     if monitoring:
-        outputs["readings_sections"] = _write_sections(project, monitoring, out)
+        outputs["readings_sections"] = _write_sections(project, monitoring, stage)
     if report:
         outputs["report"] = f"{stem}-report.pdf"
     summary = summarise(result, outputs=outputs)
     if monitoring:
         summary["readings"] = _readings_summary(layers["readings"], monitoring.readings)
-    write_text_atomic(out / "summary.json", json.dumps(summary, indent=2) + "\n")
+    write_text_atomic(stage / "summary.json", json.dumps(summary, indent=2) + "\n")
     if report:
-        write_run_report(project, out, stem)
+        _report_pdf(project, stage, stage, stem, record.run_date)
     return summary
 
 
-def _write_layers(result: Result, layers: dict, out: Path, stem: str) -> dict:
+class _writing:
+    """`RunSet(out)` whose failures while writing become OutputError: one line, the earlier set untouched."""
+
+    def __init__(self, out: Path):
+        self.run_set = RunSet(out)
+
+    def __enter__(self) -> RunSet:
+        try:
+            return self.run_set.__enter__()
+        except OSError as exc:
+            raise OutputError(f"{self.run_set.folder}: cannot be written: {exc}") from exc
+
+    def __exit__(self, kind, error, trace):
+        self.run_set.__exit__(kind, error, trace)
+        if not isinstance(error, Exception) or isinstance(error, InputError) or os.environ.get("SETTLE_DEBUG"):
+            return False
+        where = ("the new outputs are committed and the next settle command on this folder finishes moving them "
+                 "into place") if self.run_set.committed else "the earlier outputs are untouched"
+        reason = str(error) if isinstance(error, OutputError) else f"{type(error).__name__}: {error}"
+        raise OutputError(f"{self.run_set.folder}: {reason}; {where}") from error
+
+
+def _manifest(kind: str, record: RunRecord, out: Path) -> dict:
+    """run.json's content but the outputs (`RunSet.commit` adds them)."""
+    folder = Path(out).resolve()
+    names = {path: Path(os.path.relpath(path, folder)).as_posix() for path in record.inputs}
+    return {"settle_version": __version__, "kind": kind, "command": record.command, "options": record.options,
+            "run_date": record.run_date, "inputs": {names[p]: digest for p, digest in record.inputs.items()},
+            "input_locations": {names[p]: p.as_posix() for p in record.inputs}, "caution": CAUTION}
+
+
+def _write_layers(result: Result, layers: dict, out: Path, stem: str, run_date: str | None) -> dict:
     """The GeoPackage with its styles, the style files beside it and the optional GeoTIFF; their names."""
     from .styles import styles_hook, write_style_files
 
     levels = result.project.output.contour_levels_mm
     gpkg = out / f"{stem}.gpkg"
-    write_geopackage(gpkg, layers, extra=styles_hook(layers, levels))
+    last_change = f"{run_date}T00:00:00.000Z" if run_date else UNDATED_LAST_CHANGE
+    write_geopackage(gpkg, layers, extra=styles_hook(layers, levels), last_change=last_change)
     styles = write_style_files(out, stem, layers=layers, levels_mm=levels)
     outputs = {"geopackage": gpkg.name, "summary": "summary.json", "styles": sorted(p.name for p in styles)}
     if result.project.output.settlement_geotiff:
@@ -142,24 +208,69 @@ def _readings_summary(layer, readings) -> dict:
             "rows_left_out": readings.left_out_count}
 
 
-def write_run_report(project, out: Path, stem: str, date=None) -> Path:
-    """The PDF assessment report of a finished run in `out`, from its outputs (nothing recomputed)."""
+def write_run_report(project, out: Path, stem: str, date=None, record: RunRecord | None = None) -> Path:
+    """The PDF assessment report of a finished run in `out`, from its outputs (nothing recomputed), added to the
+    run's set. Refused (InputError naming what changed and the command that re-runs) when the run's inputs or
+    outputs changed since the run, or when `project` is not the run's project file."""
+    out = Path(out)
+    manifest = _current_manifest(project, out)
+    pdf = f"{stem}-report.pdf"
+    with _writing(out) as run_set:
+        _report_pdf(project, out, run_set.stage, stem, date or manifest.get("run_date"))
+        options = dict(manifest.get("options") or {}, report=True)
+        record = RunRecord(command=manifest.get("command"), options=options, run_date=manifest.get("run_date"))
+        kept = set(manifest.get("outputs", {})) - {pdf}
+        run_set.commit(dict(_manifest("run", record, out), inputs=manifest.get("inputs", {}),
+                            input_locations=manifest.get("input_locations", {})), kept=kept)
+    return (out / pdf).resolve()
+
+
+def _current_manifest(project, out: Path) -> dict:
+    """The run folder's run.json, checked: its inputs and outputs are as the run left them, and `project` is its
+    project file. InputError otherwise, naming what changed and the command that re-runs."""
+    manifest = read_manifest(out)
+    project_file = getattr(project, "path", None) or project
+    again = f"settle run {shlex.quote(str(project_file))} --out {shlex.quote(str(out))}"
+    if manifest is None:
+        raise InputError(f"{out}: holds no {MANIFEST} (not a finished run of this version of settle); "
+                         f"re-run: {again}")
+    if manifest.get("command"):
+        again = shlex.join(manifest["command"])
+    for section, what in (("inputs", "the inputs changed since the run"),
+                          ("outputs", "the outputs changed since the run")):
+        changed = changed_files(manifest, out, section)
+        if changed:
+            shown = ", ".join(changed[:5]) + (" ..." if len(changed) > 5 else "")
+            raise InputError(f"{out}: {what}: {shown}; re-run: {again}")
+    recorded = set((manifest.get("inputs") or {}).values())
+    if Path(project_file).is_file() and sha256_of(project_file) not in recorded:
+        raise InputError(f"{project_file}: is not the project file of the run in {out}; re-run: {again}")
+    return manifest
+
+
+def _report_pdf(project, source: Path, target: Path, stem: str, date=None) -> Path:
+    """The PDF report of the run whose outputs lie in `source`, written into `target`."""
     from .report import write_report
 
-    return write_report(out, stem, date, project=project,
-                        sections_chainage_m=list(project.output.sections_chainage_m) or None)
+    return write_report(source, stem, date, project=project,
+                        sections_chainage_m=list(project.output.sections_chainage_m) or None,
+                        pdf_folder=target)
 
 
-def write_fit(fit: FitOutcome, out: Path, stem: str) -> dict:
-    """Write what `settle fit` delivers into `out` (created if missing): `<stem>-fitted.toml`, forecast.csv (when
-    anything lies ahead of the face) and fit.json. Returns the paths written, by kind."""
-    out.mkdir(parents=True, exist_ok=True)
-    fitted_path = out / f"{stem}-fitted.toml"
-    write_text_atomic(fitted_path, fit.fitted_project_text)
-    written = {"fitted_project": fitted_path}
+def write_fit(fit: FitOutcome, out: Path, stem: str, record: RunRecord | None = None) -> dict:
+    """Write what `settle fit` delivers into `out` (created if missing) as one set: `<stem>-fitted.toml`,
+    forecast.csv (when anything lies ahead of the face), fit.json and run.json. Returns the paths, by kind."""
+    record = record or RunRecord()
+    written = {"fitted_project": out / f"{stem}-fitted.toml"}
     if fit.forecast_rows:
-        written["forecast"] = out / write_rows_csv(out / "forecast.csv", fit.forecast_rows)
-    report = dict(fit.report, outputs={k: p.name for k, p in written.items()})
+        written["forecast"] = out / "forecast.csv"
     written["fit"] = out / "fit.json"
-    write_text_atomic(written["fit"], json.dumps(report, indent=2, allow_nan=False) + "\n")
+    with _writing(out) as run_set:
+        stage = run_set.stage
+        write_text_atomic(stage / written["fitted_project"].name, fit.fitted_project_text)
+        if fit.forecast_rows:
+            write_rows_csv(stage / "forecast.csv", fit.forecast_rows)
+        report = dict(fit.report, outputs={k: p.name for k, p in written.items() if k != "fit"})
+        write_text_atomic(stage / "fit.json", json.dumps(report, indent=2, allow_nan=False) + "\n")
+        run_set.commit(_manifest("fit", record, out))
     return written

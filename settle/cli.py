@@ -6,6 +6,7 @@ its outputs (for example the GeoPackage is open for editing elsewhere).
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import textwrap
 from pathlib import Path
@@ -79,6 +80,9 @@ def _add_run(commands) -> None:
     run.add_argument("--quiet", action="store_true", help="print nothing but errors")
     run.add_argument("--report", action="store_true",
                      help="also write DIR/<stem>-report.pdf, the assessment report (as `settle report` does)")
+    run.add_argument("--date", metavar="YYYY-MM-DD",
+                     help="the run date: printed in the report and kept in run.json and the GeoPackage; without "
+                          "it the outputs carry no date, so the same inputs give the same bytes")
     run.add_argument("--readings", metavar="READINGS.csv",
                      help="monitoring readings: adds the `readings` layer (latest reading, prediction, difference, "
                           "trigger status against [monitoring] amber_mm and red_mm) and a figure per monitored "
@@ -94,7 +98,8 @@ def _add_report(commands) -> None:
         "the cautions of the trade. Nothing is recomputed.", "the project file the run was made from",
         "the run's output folder")
     report.add_argument("--date", metavar="YYYY-MM-DD",
-                        help="the date printed in the report (default: the date the run wrote its GeoPackage)")
+                        help="the date printed in the report (default: the run date given to settle run --date; "
+                             "none when it was given none)")
 
 
 def _add_fit(commands) -> None:
@@ -121,21 +126,24 @@ def _add_fit(commands) -> None:
 
 def _run(args) -> int:
     """`settle run`: the assessment, its outputs in the run folder, and the closing table."""
-    from gis_out.run_folder import check_out_folder, write_run
+    from gis_out.run_folder import check_out_folder, output_stem, write_run
 
     from .inputs.project_file import load_project
     from .procedure.monitoring_steps import read_monitoring
     from .procedure.orchestrator import run
+    from .procedure.run_record import record_run
 
     project = load_project(args.project)
-    out = check_out_folder(args.out)
+    out, stem = check_out_folder(args.out), output_stem(args.project)
+    record = record_run(project, args.argv, {"report": args.report, "readings": args.readings, "date": args.date},
+                        args.date, [args.readings] if args.readings else ())
     monitoring = read_monitoring(project, args.readings) if args.readings else None
     progress = _Progress(sys.stderr.isatty() and not args.quiet)
     try:
         result = run(project, progress)
     finally:
         progress.done()
-    summary = write_run(result, out, Path(args.project).stem, monitoring=monitoring, report=args.report)
+    summary = write_run(result, out, stem, monitoring=monitoring, report=args.report, record=record)
     if not args.quiet:
         if monitoring:
             for message in monitoring.readings.left_out_messages():
@@ -150,28 +158,34 @@ def _run(args) -> int:
 
 def _report(args) -> int:
     """`settle report`: the PDF from a finished run's outputs."""
-    from gis_out.run_folder import write_run_report
+    from gis_out.run_folder import output_stem, write_run_report
 
     from .inputs.project_file import load_project
 
+    from .procedure.run_record import run_date
+
     project = load_project(args.project)
-    path = write_run_report(project, Path(args.out), Path(args.project).stem, args.date)
+    path = write_run_report(project, Path(args.out), output_stem(args.project), run_date(args.date))
     print(f"wrote {path}")
     return 0
 
 
 def _fit(args) -> int:
     """`settle fit`: back-analysis, fitted project file, forecast ahead of the face."""
-    from gis_out.run_folder import check_out_folder, write_fit
+    from gis_out.run_folder import check_out_folder, output_stem, write_fit
 
     from .inputs.project_file import load_project
     from .procedure.monitoring_steps import fit_monitoring
+    from .procedure.run_record import record_run
 
     project = load_project(args.project)
-    out = check_out_folder(args.out)
+    out, stem = check_out_folder(args.out), output_stem(args.project)
+    options = {"readings": args.readings, "per_reach": args.per_reach, "outlier_limit": args.outlier_limit,
+               "min_face_past_m": args.min_face_past_m}
+    record = record_run(project, args.argv, options, extra_inputs=[args.readings])
     fit = fit_monitoring(project, args.project, args.readings, out, per_reach=args.per_reach,
                          outlier_limit=args.outlier_limit, min_face_past_m=args.min_face_past_m)
-    written = write_fit(fit, out, Path(args.project).stem)
+    written = write_fit(fit, out, stem, record=record)
     if not args.quiet:
         _print_fit(fit, written)
     return 0
@@ -195,7 +209,9 @@ def _print_fit(fit, written: dict) -> None:
 
 
 def main(argv=None) -> int:
+    argv = [os.fspath(a) for a in (sys.argv[1:] if argv is None else argv)]
     args = _parser().parse_args(argv)
+    args.argv = ["settle", *argv]
     try:
         if args.command == "run":
             return _run(args)
@@ -206,14 +222,22 @@ def main(argv=None) -> int:
     except InputError as exc:
         print(f"settle: error: {exc}", file=sys.stderr)
         return InputError.exit_status
+    except KeyboardInterrupt:
+        print("settle: interrupted; the earlier outputs are untouched", file=sys.stderr)
+        return 130
     except Exception as exc:  # the outputs could not be written; the earlier result is untouched
         import gis_out
 
-        if isinstance(exc, (OSError, gis_out.OutputError)):
-            print(f"settle: could not write the outputs: {exc}", file=sys.stderr)
+        if isinstance(exc, (OSError, MemoryError, gis_out.OutputError)):
+            print(f"settle: could not write the outputs: {_one_line(exc)}", file=sys.stderr)
             return 1
         raise
     return 0
+
+
+def _one_line(exc: BaseException) -> str:
+    """An exception's message on one line."""
+    return " ".join(str(exc).split()) or type(exc).__name__
 
 
 if __name__ == "__main__":

@@ -137,6 +137,7 @@ def test_the_checks_see_what_they_look_for():
     for stray in ("numpy.linalg", "settle.somewhere_new"):
         with pytest.raises(AssertionError, match="belongs to no layer"):
             layer_of(stray)
-    source = "import os, json\nos.replace(a, b)\njson.dump(x, f)\nopen(p, 'w')\nopen(p)\nPath(p).write_text(t)\ns.replace(a, b)\n"
+    source = ("import os, json\nos.replace(a, b)\njson.dump(x, f)\nopen(p, 'w')\nopen(p)\nPath(p).write_text(t)\n"
+              "s.replace(a, b)\n")
     assert writing_calls(ast.parse(source)) == ["line 2: replace", "line 3: dump", "line 4: open",
                                                 "line 6: write_text"]

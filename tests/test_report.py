@@ -7,6 +7,8 @@ import datetime as dt
 import json
 import re
 import sqlite3
+import subprocess
+import sys
 import time
 import zlib
 from pathlib import Path
@@ -145,12 +147,23 @@ def test_methods_carry_the_references_of_the_engine_docstrings(demo):
             assert " ".join(ref.split()[:3]) in methods, ref
 
 
-def test_the_run_date_is_the_only_date_and_is_the_geopackages(demo):
+def test_a_run_given_no_date_gives_a_report_with_none(demo):
     out, _, _, text = demo
+    assert not re.findall(r"\d{4}-\d{2}-\d{2}", "\n".join(text))
+    assert any("Run date: not given" in line for line in text)
+
+
+def test_the_run_date_given_is_the_only_date_in_report_and_geopackage(tmp_path):
+    out = tmp_path / "out"
+    done = subprocess.run([sys.executable, "-m", "settle", "run", DEMO / "ostrey.toml", "--out", out, "--quiet",
+                           "--report", "--date", "2026-11-30"], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
     with sqlite3.connect(out / "ostrey.gpkg") as con:
-        (stamp,) = con.execute("SELECT max(last_change) FROM gpkg_contents").fetchone()
-    dates = set(re.findall(r"\d{4}-\d{2}-\d{2}", "\n".join(text)))
-    assert dates == {stamp[:10]}
+        stamps = {row[0] for row in con.execute("SELECT last_change FROM gpkg_contents")}
+    assert stamps == {"2026-11-30T00:00:00.000Z"}
+    text = pdf_lines(out / "ostrey-report.pdf")
+    assert set(re.findall(r"\d{4}-\d{2}-\d{2}", "\n".join(text))) == {"2026-11-30"}
+    assert json.loads((out / "run.json").read_text())["run_date"] == "2026-11-30"
 
 
 def test_building_table_lists_exactly_the_buildings_in_category_2_and_above(demo):

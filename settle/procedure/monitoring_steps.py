@@ -4,6 +4,7 @@ ahead of the face). Nothing here writes a file: `gis_out.run_folder` does.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -53,6 +54,10 @@ def fit_monitoring(project: Project, project_path, readings_path, out_dir: Path,
     readings = read_readings(readings_path, project)
     if not outlier_limit > 0:
         raise InputError(f"--outlier-limit must be more than 0; got {outlier_limit:g}")
+    if not math.isfinite(outlier_limit):
+        raise InputError(f"--outlier-limit must be a finite number of standard deviations; got {outlier_limit:g}")
+    if min_face_past_m is not None and not math.isfinite(min_face_past_m):
+        raise InputError(f"--min-face-past-m must be a finite number of metres; got {min_face_past_m:g}")
     analysis = back_analysis(project, readings, per_reach=per_reach, outlier_limit=outlier_limit,
                              min_face_past_m=min_face_past_m)
     fitted_text = fitted_project_toml(project_path, analysis.fits, out_dir=out_dir)

@@ -89,5 +89,47 @@ def main():
     print(f"engine grid step: {pairs:.0f} element-node pairs ({pairs / n:.1f} a reported node), "
           f"{1e9 * a.timings['grid'] / pairs:.0f} ns a pair; {a.timings['grid'] / plain:.0f} x the plain closed form")
 
+    run_folder_overhead(result, out, t3 - t0)
+
+
+def run_folder_overhead(result, out: Path, whole_run_s: float, repeats: int = 9) -> None:
+    """What writing the outputs as one set costs: the lock and the staging folder, run.json, the sha256 of every
+    output, the flushes, the commit and the swap, timed inside `RunSet` (medians of `repeats` runs of `write_run`),
+    as a share of the whole run. Writing the files themselves costs the same in place or staged."""
+    from gis_out import run_set
+    from gis_out.run_folder import write_run
+
+    spent: dict[str, float] = {}
+
+    def timed(name, call):
+        def wrapper(*args, **kwargs):
+            start = time.perf_counter()
+            try:
+                return call(*args, **kwargs)
+            finally:
+                spent[name] = spent.get(name, 0.0) + time.perf_counter() - start
+        return wrapper
+
+    enter, commit = run_set.RunSet.__enter__, run_set.RunSet.commit
+    run_set.RunSet.__enter__, run_set.RunSet.commit = timed("open", enter), timed("commit", commit)
+    hashing = run_set.sha256_of
+    run_set.sha256_of = timed("sha256", hashing)
+    totals, own, hashed = [], [], []
+    try:
+        for k in range(repeats):
+            spent.clear()
+            start = time.perf_counter()
+            write_run(result, out / f"set-{k}", "bench")
+            totals.append(time.perf_counter() - start)
+            own.append(spent["open"] + spent["commit"])
+            hashed.append(spent["sha256"])
+    finally:
+        run_set.RunSet.__enter__, run_set.RunSet.commit, run_set.sha256_of = enter, commit, hashing
+    own_s = float(np.median(own))
+    print(f"outputs as one set: write_run {np.median(totals):.3f} s, of which staging, run.json, sha256 of every "
+          f"output ({np.median(hashed) * 1e3:.1f} ms), flushes, commit and swap {own_s * 1e3:.1f} ms = "
+          f"{100 * own_s / whole_run_s:.1f} % of the whole run ({whole_run_s:.2f} s; medians of {repeats})")
+
+
 if __name__ == "__main__":
     main()
