@@ -245,3 +245,28 @@ def test_a_fifo_as_an_input_is_refused_at_once(tmp_path):
     project.write_text(project.read_text().replace('file = "report_points.csv"', 'file = "pipe.csv"'))
     done = settle_cli("run", project, "--out", tmp_path / "out", "--quiet", timeout=60)
     assert done.returncode == 2 and "named pipe" in done.stderr and len(done.stderr.strip().splitlines()) == 1
+
+
+def test_project_file_names_with_a_semicolon_run_and_with_a_newline_are_refused(tmp_path):
+    project = copy_demo(tmp_path)
+    semicolon = project.with_name("os;trey.toml")
+    shutil.copy(project, semicolon)
+    done = settle_cli("run", semicolon, "--out", tmp_path / "out", "--quiet")
+    assert done.returncode == 0, done.stderr  # GDAL never sees the name: temporary files get plain ones
+    assert (tmp_path / "out" / "os;trey.gpkg").is_file()
+    newline = project.with_name("os\ntrey.toml")
+    shutil.copy(project, newline)
+    done = settle_cli("run", newline, "--out", tmp_path / "out2", "--quiet")
+    assert done.returncode == 2 and "U+000A" in done.stderr and len(done.stderr.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("option, value, pattern", [
+    ("--outlier-limit", "nan", "--outlier-limit must be more than 0; got nan"),
+    ("--outlier-limit", "inf", "--outlier-limit must be a finite number"),
+    ("--min-face-past-m", "nan", "--min-face-past-m must be a finite number of metres; got nan"),
+])
+def test_non_finite_fit_options_are_input_errors(tmp_path, capsys, option, value, pattern):
+    code = main(["fit", str(DEMO / "ostrey.toml"), str(DEMO / "cable_tunnel_readings.csv"), "--out",
+                 str(tmp_path / "fit"), "--quiet", option, value])
+    err = capsys.readouterr().err
+    assert code == 2 and pattern in err and len(err.strip().splitlines()) == 1
