@@ -20,7 +20,7 @@ import matplotlib.pyplot as plt  # noqa: E402  (after choosing the backend)
 import numpy as np  # noqa: E402
 
 from settle.assessments.face_stations import CAUTION, FaceStations  # noqa: E402
-from settle.inputs.route import DriveResult  # noqa: E402
+from settle.inputs.route import DriveResult, rounded_cover_m  # noqa: E402
 
 from .png import glyph_checked, save_png  # noqa: E402
 
@@ -61,7 +61,7 @@ def face_section_png(stations: FaceStations, drive: DriveResult, path, layers=()
                                         gridspec_kw={"height_ratios": [3.0, 1.2, 3.0]})
     try:
         _section_panel(sec, stations, drive, layers)
-        _cover_panel(cov, stations)
+        _cover_panel(cov, stations, drive)
         _pressure_panel(prs, stations, drive)
         fig.text(0.01, 0.005, CAUTION, fontsize=6.5, color="0.3")
         fig.tight_layout(rect=(0, 0.02, 1, 1))
@@ -96,17 +96,17 @@ def _section_panel(sec, stations: FaceStations, drive: DriveResult, layers) -> N
     sec.grid(alpha=0.3)
 
 
-def _cover_panel(cov, stations: FaceStations) -> None:
-    """Panel 2: cover to the crown [m], the low-cover limit and the low-cover stations shaded, the least cover."""
+def _cover_panel(cov, stations: FaceStations, drive: DriveResult) -> None:
+    """Panel 2: cover to the crown [m], the low-cover limit and the low-cover stations shaded, and the drive's least
+    cover (`DriveResult.min_cover_m`, the value every output shows)."""
     c = stations.chainage_m
     cov.plot(c, stations.cover_m, color="k", lw=1.2, label="cover to crown")
     cov.axhline(stations.low_cover_limit_m, color=CLOSED, lw=0.8, ls="--",
                 label=f"low-cover limit {stations.low_cover_limit_m:.2f} m")
     for a, b in _runs(stations.low_cover):
         cov.axvspan(c[a], c[b], color=CLOSED, alpha=0.12, lw=0)
-    k = int(np.argmin(stations.cover_m))
-    cov.annotate(f"{stations.cover_m[k]:.2f} m", (c[k], stations.cover_m[k]), textcoords="offset points",
-                 xytext=(4, 4), fontsize=7)
+    least, at = rounded_cover_m(drive.min_cover_m), drive.min_cover_chainage_m
+    cov.annotate(f"least cover {least:.2f} m", (at, least), textcoords="offset points", xytext=(4, 4), fontsize=7)
     cov.set_ylabel("cover (m)")
     cov.legend(loc="upper right", fontsize=7)
     cov.grid(alpha=0.3)
@@ -122,7 +122,7 @@ def _pressure_panel(prs, stations: FaceStations, drive: DriveResult) -> None:
     prs.plot(c, stations.support_max_kpa, color=MAXIMUM, lw=1.5, label="maximum support")
     prs.plot(c, stations.blowout_kpa, color=MAXIMUM, lw=0.8, ls="--", label="blow-out (total stress)")
     if np.isfinite(stations.fracture_kpa).any():
-        prs.plot(c, stations.fracture_kpa, color="purple", lw=0.8, ls=":", label="fracture (Delft)")
+        prs.plot(c, stations.fracture_kpa, color="purple", lw=0.8, ls=":", label="fracture at the crown (Delft)")
     prs.plot(c, stations.water_pressure_kpa, color=WATER, lw=0.8, label="water pressure")
     closed = stations.status == "closed"
     if closed.any():

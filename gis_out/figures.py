@@ -780,7 +780,8 @@ def _section_panel(ax, axis: DriveAxis, profile: GroundProfile | None) -> None:
         ax.annotate("", xy=(pc[k], ps[k]), xytext=(pc[k], crown),
                     arrowprops=dict(arrowstyle="<->", color="k", lw=0.8, shrinkA=0, shrinkB=0))
         right = pc[k] > 0.5 * (pc[0] + pc[-1])
-        ax.annotate(f"least cover {profile.cover_m[k]:.2f} m\nat {pc[k]:.1f} m", (pc[k], ps[k]),
+        least = axis.min_cover_m if np.isfinite(axis.min_cover_m) else profile.cover_m[k]  # the route's one value
+        ax.annotate(f"least cover {least:.2f} m\nat {pc[k]:.1f} m", (pc[k], ps[k]),
                     textcoords="offset points", xytext=(-5 if right else 5, 4), fontsize=7,
                     ha="right" if right else "left")
     levels = [z - r, z + r] + ([] if profile is None else [profile.surface_level_m])

@@ -274,3 +274,44 @@ def test_functions_take_scalars_lists_and_arrays(kind):
     assert np.ravel(out)[0] == pytest.approx(196.8, abs=0.05)
     assert np.ravel(face.rankine_active_coefficient(conv(PHI)))[0] == pytest.approx(0.30726, abs=1e-5)
     assert np.ravel(face.broms_bennermark_stability_ratio(conv(95.0), conv(40.0), 0.0, conv(10.0)))[0] == 2.625
+
+
+# ------------------------------------------------------------------------- K0, cavity stress, N_TC, Macklin
+def test_jaky_k0():
+    # methods.md s.7.2 (computed there): K0 = 1 - sin 32 = 0.470 (Jaky 1944, from memory).
+    assert float(face.jaky_k0(32.0)) == pytest.approx(0.470, abs=5e-4)
+    assert float(face.jaky_k0(0.0)) == 1.0
+
+
+@given(sv=st.floats(0.0, 500.0), k0=st.floats(0.2, 3.0))
+def test_cavity_initial_stress_is_the_mean_of_vertical_and_horizontal(sv, k0):
+    # Identity: sigma'_0 = (sigma'_v + K0 sigma'_v) / 2, between the two; K0 = 1 gives sigma'_v (the methods.md s.7.3
+    # check values take sigma'_0 = sigma'_v).
+    s0 = float(face.cavity_initial_effective_stress(sv, k0))
+    assert s0 == pytest.approx((sv + k0 * sv) / 2.0, rel=1e-12, abs=1e-12)
+    assert min(sv, k0 * sv) - 1e-9 <= s0 <= max(sv, k0 * sv) + 1e-9
+    assert float(face.cavity_initial_effective_stress(sv, 1.0)) == pytest.approx(sv)
+
+
+def test_davis_heading_stability_ratio():
+    # Davis et al. (1980) spherical lower bound, N_TC = 4 ln(2 C/D + 1) (from memory): 4 ln 3 at C/D = 1,
+    # 4 ln 5 at C/D = 2, 0 at zero cover.
+    np.testing.assert_allclose(face.davis_heading_stability_ratio([2.0, 4.0, 0.0], 2.0),
+                               [4 * np.log(3.0), 4 * np.log(5.0), 0.0], rtol=1e-12)
+    assert float(face.davis_heading_stability_ratio(2.0, 2.0)) == pytest.approx(4.394, abs=5e-4)
+
+
+@given(c=st.floats(0.1, 30.0), d=st.floats(0.5, 4.0), k=st.floats(1.01, 5.0))
+def test_davis_heading_stability_ratio_grows_with_cover_and_scales(c, d, k):
+    # Property: more cover, higher N_TC; only C/D counts.
+    assert face.davis_heading_stability_ratio(k * c, d) > face.davis_heading_stability_ratio(c, d)
+    assert float(face.davis_heading_stability_ratio(k * c, k * d)) == pytest.approx(
+        float(face.davis_heading_stability_ratio(c, d)), rel=1e-12)
+
+
+def test_macklin_volume_loss_check_values():
+    # methods.md s.1 (computed there from Macklin 1999, the fit from memory): LF 0.2 -> 0.55 %, 0.3 -> 0.86 %,
+    # 0.5 -> 2.08 %, 0.7 -> 5.0 %.
+    np.testing.assert_allclose(face.macklin_volume_loss_pct([0.2, 0.3, 0.5, 0.7]), [0.55, 0.86, 2.08, 5.0],
+                               atol=0.006)
+    assert face.MACKLIN_LOWEST_LOAD_FACTOR == 0.2

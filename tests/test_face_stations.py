@@ -21,7 +21,7 @@ from settle.errors import InputError
 from settle.inputs.face_settings import (FaceOptions, LayerStrength, River, SupportReach, check_face_options,
                                          check_layer_strengths, check_rivers)
 from settle.inputs.ground import GroundModel
-from settle.inputs.model import Ground, Layer, Surface
+from settle.inputs.model import Ground, Layer, Reach, Surface
 from settle.inputs.route import build_drive
 
 from . import builders as b
@@ -79,15 +79,34 @@ def test_flat_one_layer_station_by_hand():
     assert not s.in_river.any() and not s.low_cover.any()
 
 
-def test_fracture_at_station_by_hand():
-    # Delft (Luger & Hergarden 1988), methods.md s.7.3 formula, written out here: R_o = D/2 = 1.0 m,
-    # R_p,max = 2/3 of the 4 m cover, sigma'_0 = sigma'_v,axis = 50.95, u = 49.05, G = 10 MPa; to the crown with
-    # gamma_slurry = 11 (11 kPa over D/2 = 1 m).
+def _delft_sand(sigma0, u, phi=32.0, g=10000.0, cover=4.0):
+    # Delft (Luger & Hergarden 1988), methods.md s.7.3 formula with c' = 0, written out here: R_o = D/2 = 1.0 m,
+    # R_p,max = 2/3 of the cover.
+    sin = np.sin(np.radians(phi))
+    x = (1.0 / (2 * cover / 3)) ** 2 + sigma0 * sin / g
+    return u + sigma0 * (1 + sin) * x ** (-sin / (1 + sin))
+
+
+def test_fracture_at_the_crown_by_hand():
+    # At the crown: sigma'_v = 80 - 39.24 = 40.76 kPa, K0 = 1 - sin 32 (Jaky 1944, from memory), initial stress the
+    # mean of vertical and horizontal, 40.76 (1 + K0) / 2; u = 39.24; G = 10 MPa.
     s = run()
-    sin = np.sin(np.radians(32.0))
-    x = (1.0 / (2 * 4.0 / 3)) ** 2 + 50.95 * sin / 10000.0
-    p_axis = 49.05 + 50.95 * (1 + sin) * x ** (-sin / (1 + sin))
-    assert s.fracture_kpa[0] == pytest.approx(p_axis - 11.0, rel=1e-12)
+    k0 = 1.0 - np.sin(np.radians(32.0))
+    assert s.fracture_kpa[0] == pytest.approx(_delft_sand(40.76 * (1 + k0) / 2, 39.24), rel=1e-12)
+    # For reference, the axis value as before: sigma'_0 = sigma'_v,axis = 50.95, u = 49.05 (methods.md s.7.3),
+    # brought to the crown with gamma_slurry = 11 (11 kPa over D/2 = 1 m).
+    assert s.fracture_axis_kpa[0] == pytest.approx(_delft_sand(50.95, 49.05) - 11.0, rel=1e-12)
+    # Less confinement at the crown: its limit is the lower one here, and the one the maximum takes.
+    assert (s.fracture_kpa < s.fracture_axis_kpa).all()
+
+
+def test_a_layer_k0_sets_the_initial_stress_and_the_side_shear():
+    # k0 = 1: the initial stress is sigma'_v itself; the block's side shear takes k0 in place of 1 - sin phi'.
+    s = run(strengths=(LayerStrength(32.0, 0.0, None, 10.0, k0=1.0),))
+    assert s.fracture_kpa[0] == pytest.approx(_delft_sand(40.76, 39.24), rel=1e-12)
+    jaky, one = run(), run(strengths=(LayerStrength(32.0, 0.0, None, 10.0, k0=1.0),))
+    extra = one.uplift_with_shear_kpa[0] - 80.0  # (2/D) K gamma' C^2 tan phi' / 2, methods.md s.7.2
+    assert extra == pytest.approx((jaky.uplift_with_shear_kpa[0] - 80.0) / (1 - np.sin(np.radians(32.0))))
 
 
 def test_river_reach_adds_the_water_column():
@@ -120,7 +139,8 @@ def test_river_bed_below_the_ground_sets_the_cover():
 
 def test_side_shear_option_uses_the_block_limit():
     # methods.md s.7.2 (computed there): the block limit under 3 m of water is 133.38 kPa before the factor 1.1.
-    s = run(rivers=[River("A", 40.0, 60.0, 10.0, 13.0)], options=FaceOptions(blowout_side_shear=True))
+    s = run(rivers=[River("A", 40.0, 60.0, 10.0, 13.0)], options=FaceOptions(blowout_side_shear=True),
+            strengths=(LayerStrength(32.0, 0.0),))  # no G: no fracture limit below it
     k = at(s, 50.0)
     assert s.uplift_with_shear_kpa[k] == pytest.approx(133.38, abs=5e-3)
     assert s.support_max_kpa[k] == pytest.approx(133.38 / 1.1, abs=5e-3)
@@ -179,9 +199,16 @@ def test_broms_bennermark_governs_soft_clay_and_is_flagged():
     soft = _clay(10.0)
     assert soft.stability_ratio_n[0] == pytest.approx(9.5)
     assert soft.n_above_critical.all()
-    # Support for N = 6 at the axis: 95 - 60 = 35 kPa; at the crown 35 - 11 x 1 = 24 kPa.
-    assert soft.support_min_kpa[0] == pytest.approx(24.0)
+    # Support that holds N at the working level 3 (Mair 1979; O'Reilly 1988; from memory) at the axis:
+    # 95 - 3 x 10 = 65 kPa; at the crown 65 - 11 x 1 = 54 kPa.
+    assert soft.support_min_kpa[0] == pytest.approx(54.0)
     assert soft.min_governed_by[0] == "broms_bennermark"
+    assert soft.stability_ratio_at_min_n[0] == pytest.approx(3.0)
+    # At collapse instead (allowable = critical = 6): 95 - 60 = 35 kPa at the axis, 24 kPa at the crown.
+    clay = Layer("clay", 10.0, 19.0, 0.5, "cohesive")
+    at_collapse = run(model((clay,), water=8.0), strengths=(LayerStrength(25.0, 5.0, 10.0, 6.0),),
+                      options=FaceOptions(allowable_stability_ratio=6.0))
+    assert at_collapse.support_min_kpa[0] == pytest.approx(24.0)
     firm = _clay(40.0)
     assert firm.stability_ratio_n[0] == pytest.approx(2.375)
     assert not firm.n_above_critical.any() and firm.min_governed_by[0] == "wedge_silo"
@@ -191,11 +218,16 @@ def test_broms_bennermark_governs_soft_clay_and_is_flagged():
 
 
 def test_undrained_fracture_in_clay_by_hand():
-    # Delft undrained (methods.md s.7.3): sigma_0 = 95 total at the axis, c_u = 40, G = 6 MPa, R_o = 1.0,
-    # R_p,max = cover / 2 = 2.0 m; to the crown, minus 11 kPa.
+    # Delft undrained (methods.md s.7.3): c_u = 40, G = 6 MPa, R_o = 1.0, R_p,max = cover / 2 = 2.0 m.
     s = _clay(40.0)
     x = (1.0 / 2.0) ** 2 + 40.0 / 6000.0
-    assert s.fracture_kpa[0] == pytest.approx(95.0 + 40.0 * (1 + np.log(1 / x)) - 11.0)
+    # At the crown (6 m, water at 8 m): sigma_v = 19 x 4 = 76, u = 9.81 x 2, K0 = 1 - sin 25 (Jaky, from memory);
+    # sigma_0 = (76 - 19.62)(1 + K0) / 2 + 19.62.
+    k0 = 1.0 - np.sin(np.radians(25.0))
+    sigma0 = (76.0 - 19.62) * (1 + k0) / 2 + 19.62
+    assert s.fracture_kpa[0] == pytest.approx(sigma0 + 40.0 * (1 + np.log(1 / x)))
+    # At the axis, for reference: sigma_0 = 95 total; to the crown, minus 11 kPa.
+    assert s.fracture_axis_kpa[0] == pytest.approx(95.0 + 40.0 * (1 + np.log(1 / x)) - 11.0)
 
 
 def test_granular_ground_has_no_stability_ratio():
@@ -405,3 +437,170 @@ def test_stations_where_the_tunnel_crosses_the_water_table():
     s = face_stations(geometry(g, axis=[7.0, 3.0]), g, [SAND_S], options=FaceOptions(face_station_spacing_m=50.0))
     for level in (s.crown_level_m, s.axis_level_m, s.invert_level_m):
         assert np.any(np.isclose(level, 5.5, atol=1e-9))
+
+
+# ------------------------------------------------------------------------------- working level in clay (issue 13)
+def _design(vl_pct=1.0, reaches=()):
+    return b.drive(((0, 0), (100, 0)), 5.0, diameter=2.0, vl_pct=vl_pct, reaches=tuple(reaches))
+
+
+def _clay_run(cu, design=None, **kw):
+    clay = Layer("clay", 10.0, 19.0, 0.5, "cohesive")
+    g = model((clay,), water=8.0)
+    return face_stations(geometry(g), g, [LayerStrength(25.0, 5.0, cu, 6.0)], design_drive=design, **kw)
+
+
+def test_implied_volume_loss_by_hand_and_its_warning():
+    # Soft clay, c_u = 10 kPa: the minimum holds N = 3 (95 - 65 = 30 kPa over c_u at the axis). Cover 4 m, D = 2 m:
+    # N_TC = 4 ln(2 x 2 + 1) (Davis et al. 1980, from memory); LF = 3 / N_TC; VL = 0.23 exp(4.4 LF) % (Macklin
+    # 1999, from memory; methods.md s.1).
+    reach = Reach(40.0, 60.0, 2.0)
+    s = _clay_run(10.0, _design(1.0, [reach]))
+    n_tc = 4.0 * np.log(5.0)
+    lf = 3.0 / n_tc
+    np.testing.assert_allclose(s.stability_ratio_at_min_n, 3.0, rtol=1e-12)
+    np.testing.assert_allclose(s.critical_stability_ratio_tc, n_tc, rtol=1e-12)
+    np.testing.assert_allclose(s.load_factor, lf, rtol=1e-12)
+    np.testing.assert_allclose(s.implied_volume_loss_pct, 0.23 * np.exp(4.4 * lf), rtol=1e-12)
+    assert s.implied_volume_loss_pct[0] == pytest.approx(1.787, abs=5e-4)
+    # The design volume loss of each station's reach: 2 % from 40 up to 60 m, 1 % elsewhere.
+    inside = (s.chainage_m >= 40.0) & (s.chainage_m < 60.0)
+    np.testing.assert_array_equal(s.design_volume_loss_pct, np.where(inside, 2.0, 1.0))
+    np.testing.assert_array_equal(s.implied_above_design, ~inside)
+    warning = [w for w in s.warnings if "volume loss implied" in w]
+    assert len(warning) == 1 and "chainage 0-35 m, 60-100 m;" in warning[0] and "1.79 % against 1.00 %" in warning[0]
+
+
+def test_load_factor_below_the_fit_takes_its_lowest_value():
+    # Stiff clay, c_u = 100: the drained minimum governs (1.05 x 9.81 x 2 at the crown, + 11 at the axis):
+    # N = (95 - 31.6) / 100 = 0.634, LF = 0.098 < 0.2: VL is taken at LF = 0.2, 0.23 exp(0.88) = 0.555 %.
+    s = _clay_run(100.0, _design(0.5))
+    assert s.min_governed_by[0] == "wedge_silo"
+    assert s.load_factor[0] == pytest.approx((95.0 - 1.05 * 9.81 * 2 - 11.0) / 100.0 / (4.0 * np.log(5.0)))
+    np.testing.assert_allclose(s.implied_volume_loss_pct, 0.23 * np.exp(0.88), rtol=1e-12)
+    assert s.implied_above_design.all()  # 0.555 % > 0.5 %
+
+
+def test_no_volume_loss_comparison_without_clay_or_design():
+    sand = run()
+    assert np.isnan(sand.implied_volume_loss_pct).all() and np.isnan(sand.load_factor).all()
+    assert not sand.implied_above_design.any()
+    alone = _clay_run(10.0)
+    assert np.isfinite(alone.implied_volume_loss_pct).all() and np.isnan(alone.design_volume_loss_pct).all()
+    assert not alone.implied_above_design.any() and not any("volume loss implied" in w for w in alone.warnings)
+
+
+@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(cu=st.floats(5.0, 80.0), margin=st.floats(0.0, 40.0))
+def test_more_support_lowers_the_load_factor_by_margin_over_cu(cu, margin):
+    # Identity: a margin m on the minimum lowers N by m / c_u, the load factor by m / (c_u N_TC), and the implied
+    # volume loss never rises.
+    base = _clay_run(cu)
+    more = _clay_run(cu, options=FaceOptions(support_margin_kpa=margin))
+    n_tc = 4.0 * np.log(5.0)
+    np.testing.assert_allclose(more.load_factor, base.load_factor - margin / (cu * n_tc), rtol=1e-9, atol=1e-12)
+    assert np.all(more.implied_volume_loss_pct <= base.implied_volume_loss_pct + 1e-12)
+
+
+@pytest.mark.parametrize("options, message", [
+    (FaceOptions(allowable_stability_ratio=7.0), r"allowable_stability_ratio must be a number more than 0 and at "
+                                                 r"most critical_stability_ratio \(6\); got 7"),
+    (FaceOptions(allowable_stability_ratio=0.0), r"allowable_stability_ratio must be .*got 0"),
+])
+def test_bad_allowable_stability_ratio(options, message):
+    with pytest.raises(InputError, match=message):
+        check_face_options(options, "p.toml")
+
+
+@pytest.mark.parametrize("k0", [0.1, 3.5, float("nan")])
+def test_bad_k0(k0):
+    with pytest.raises(InputError, match=r'#1 "sand": k0 must be a number from 0.2 to 3; got'):
+        run(strengths=(LayerStrength(32.0, 0.0, None, 10.0, k0=k0),))
+
+
+# ----------------------------------------------------------------------------- stations: merged, printed once
+def _printed_once(stations):
+    rows = operator_csv_text([stations]).splitlines()[3:]
+    chainages = [row.split(",")[1] for row in rows]
+    return len(chainages) == len(set(chainages)) == len(stations)
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(jitter=st.lists(st.floats(-0.012, 0.012), min_size=3, max_size=12), spacing=st.sampled_from([2.5, 5.0]),
+       river_at=st.floats(10.0, 40.0), reach_at=st.floats(55.0, 85.0), start=st.floats(0.0, 3.0))
+def test_no_two_stations_closer_than_5_mm_nor_printed_alike(jitter, spacing, river_at, reach_at, start):
+    # Vertices a few millimetres from the regular stations (as on the demo, whose chainage runs along the 3-D axis),
+    # a river and a support reach: the stations keep 5 mm apart, print once each to 0.01 m, and keep the drive's
+    # ends, every reach end and the step station 10 mm beyond it.
+    xs = np.concatenate([[0.0], np.arange(1, len(jitter) + 1) * 100.0 / (len(jitter) + 1) + np.array(jitter), [100.0]])
+    g = model()
+    drive = build_drive(b.drive(np.column_stack([xs, np.zeros_like(xs)]), 5.0, diameter=2.0,
+                                start_chainage_m=start), g)[0]
+    river = River("A", start + river_at, start + river_at + 7.3, 9.5, 10.5)
+    reach = SupportReach(start + reach_at, start + reach_at + 6.1, "air_cushion")
+    s = face_stations(drive, g, [SAND_S], [river], FaceOptions(face_station_spacing_m=spacing), [reach])
+    c = s.chainage_m
+    assert np.all(np.diff(c) >= 0.005 - 1e-12)
+    assert _printed_once(s)
+    assert c[0] == drive.start_chainage_m and c[-1] == drive.end_chainage_m
+    for must in (river.from_chainage_m - 0.01, river.from_chainage_m, river.to_chainage_m, river.to_chainage_m + 0.01,
+                 reach.from_chainage_m - 0.01, reach.from_chainage_m, reach.to_chainage_m - 0.01, reach.to_chainage_m):
+        assert np.min(np.abs(c - must)) < 1e-9
+
+
+def test_demo_face_pressures_print_each_chainage_once():
+    # The demo (issue 13: 34 stations lay 1-5 mm from another and printed as duplicate rows): no two rows of
+    # face_pressures.csv share a drive and chainage, and its minimum cover is one number.
+    from gis_out.frames import route_frame
+    from settle.inputs.project_file import load_project
+    from settle.inputs.route import rounded_cover_m
+
+    p = load_project(b.DEMO / "ostrey.toml")
+    g = GroundModel(p.ground)
+    all_stations, drives = [], []
+    for d in p.drives:
+        geometry, warnings = build_drive(d, g, "ostrey.toml", rivers=p.rivers)
+        drives.append(geometry)
+        s = face_stations(geometry, g, list(p.strengths), list(p.rivers), p.face, list(d.face_support),
+                          "ostrey.toml", design_drive=d)
+        all_stations.append(s)
+        assert np.all(np.diff(s.chainage_m) >= 0.005 - 1e-12) and _printed_once(s)
+        # The face stations' least cover, to the river bed under the brook, is the drive's.
+        assert rounded_cover_m(s.cover_m.min()) == rounded_cover_m(geometry.min_cover_m)
+        for w in warnings:
+            assert f"smallest {rounded_cover_m(geometry.min_cover_m):.2f} m" in w
+    rows = operator_csv_text(all_stations).splitlines()[3:]
+    keys = [tuple(row.split(",")[:2]) for row in rows]
+    assert len(keys) == len(set(keys))
+    main = drives[0]
+    assert rounded_cover_m(main.min_cover_m) == 3.10 and main.min_cover_chainage_m == pytest.approx(289.0)
+    route = route_frame(drives, p.crs)
+    assert list(route["min_cover_m"]) == [rounded_cover_m(d.min_cover_m) for d in drives]
+
+
+def test_minimum_cover_is_one_number_everywhere():
+    # A valley between the two vertices of a straight drive: the least cover (3.1049 m at 50 m) lies between them,
+    # where the vertices alone would say 4.68 m. The cover warning, summary.json (drive and face summary), the route
+    # layer and the closing table all show 3.10 m.
+    import dataclasses
+
+    from gis_out.frames import route_frame
+    from settle import run as run_project
+    from settle.procedure.summary import summarise
+    from settle.terminal import summary_table
+
+    pts = np.array([[-10, -10, 10], [-10, 10, 10], [50, -10, 8.1049], [50, 10, 8.1049], [110, -10, 10],
+                    [110, 10, 10]], dtype=float)
+    g = Ground(Surface(points_xyz=pts), 3.0, (SAND,))
+    project = dataclasses.replace(b.project([b.drive(((0, 0), (100, 0)), 4.0, diameter=2.0)], spacing=2.0,
+                                            ground_=g), strengths=(SAND_S,))
+    result = run_project(project)
+    drive = result.drives[0]
+    assert drive.min_cover_m == pytest.approx(3.1049, abs=1e-9) and drive.min_cover_chainage_m == 50.0
+    assert np.min(drive.cover_m) > 4.6  # at the vertices
+    summary = summarise(result)
+    assert summary["drives"][0]["min_cover_m"] == 3.1 and summary["drives"][0]["min_cover_chainage_m"] == 50.0
+    assert summary["face_support"][0]["min_cover_m"] == 3.1
+    assert route_frame(result.drives, project.crs)["min_cover_m"][0] == 3.1
+    assert any("smallest 3.10 m" in w for w in result.warnings)
+    assert "least cover 3.10 m" in summary_table(summary, "out")

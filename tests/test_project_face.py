@@ -90,3 +90,28 @@ def test_unknown_face_key_and_bad_mode(site):
     fails(path, r'\[face\]: unknown key "slurry_weight"; did you mean "slurry_unit_weight_kn_m3"')
     path = edit(site, "slurry_weight = 11", 'support_mode = "foam"')
     fails(path, r'\[face\]: support_mode must be one of "slurry", "air_cushion"; got "foam"')
+
+
+def test_k0_and_allowable_stability_ratio_are_read(site):
+    with_strengths(site)
+    path = edit(site, "undrained_strength_kpa = 50\n", "undrained_strength_kpa = 50\nk0 = 1.2\n")
+    path = edit(site, "[output]", "[face]\nallowable_stability_ratio = 2.5\n\n[output]")
+    p = load_project(path)
+    assert p.strengths[1].k0 == 1.2 and p.strengths[0].k0 is None  # None: Jaky's 1 - sin phi' at run time
+    assert p.face.allowable_stability_ratio == 2.5 and p.face.critical_stability_ratio == 6.0
+
+
+@pytest.mark.parametrize("value, message", [
+    ("0.1", r'#2 "Clay": k0 must be from 0.2 to 3; got 0.1'),
+    ('"high"', r'#2 "Clay": k0 must be a positive number; got "high"'),
+])
+def test_bad_k0_in_the_project_file(site, value, message):
+    with_strengths(site)
+    fails(edit(site, "undrained_strength_kpa = 50\n", f"undrained_strength_kpa = 50\nk0 = {value}\n"), message)
+
+
+def test_allowable_stability_ratio_above_the_critical_one(site):
+    with_strengths(site)
+    path = edit(site, "[output]", "[face]\nallowable_stability_ratio = 6.5\n\n[output]")
+    fails(path, r"\[face\]: allowable_stability_ratio must be a number more than 0 and at most "
+                r"critical_stability_ratio \(6\); got 6.5")

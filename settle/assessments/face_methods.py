@@ -21,6 +21,17 @@ References
 [LH88]    Luger, H. J. & Hergarden, H. J. A. M. (1988). Directional drilling in soft soil: influence of mud pressures.
           Proc. Int. Symp. No-Dig '88, Washington DC.
 [Rank1857] Rankine, W. J. M. (1857). On the stability of loose earth. Phil. Trans. R. Soc. London 147, 9-27.
+[Jaky44]  Jaky, J. (1944). The coefficient of earth pressure at rest. J. Soc. Hungarian Architects and Engineers
+          78(22), 355-358 (K0 = 1 - sin phi').
+[Davis80] Davis, E. H., Gunn, M. J., Mair, R. J. & Seneviratne, H. N. (1980). The stability of shallow tunnels and
+          underground openings in cohesive material. Geotechnique 30(4), 397-416.
+[KM81]    Kimura, T. & Mair, R. J. (1981). Centrifugal testing of model tunnels in soft clay. Proc. 10th ICSMFE,
+          Stockholm, 1, 319-322.
+[Mair79]  Mair, R. J. (1979). Centrifugal modelling of tunnel construction in soft clay. PhD thesis, Cambridge.
+[OR88]    O'Reilly, M. P. (1988). Evaluating and predicting ground settlements caused by tunnelling in London Clay.
+          Tunnelling '88, IMM, London, 231-241.
+[Mac99]   Macklin, S. R. (1999). The prediction of volume loss due to tunnelling in overconsolidated clay based on
+          heading geometry and stability number. Ground Engineering 32(4), 30-33.
 
 Bibliographic details beyond those given in ../shared/methods.md section 7 (journals, pages) are from memory.
 Equation forms as collected in ../shared/methods.md section 7 (7.1 minimum support, 7.2 blow-out, 7.3 fracture).
@@ -33,6 +44,12 @@ import numpy as np
 
 from ..inputs.published_defaults import (  # noqa: F401  (the method's own constants, named here too)
     ANAGNOSTOU_KOVARI_SILO_RATIO, ANAGNOSTOU_KOVARI_WEDGE_RATIO, BROMS_BENNERMARK_CRITICAL_N, GAMMA_W)
+
+#: Macklin (1999) fit for overconsolidated clay, VL = 0.23 exp(4.4 LF) [%], valid for LF >= 0.2 (from memory;
+#: methods.md section 1).
+MACKLIN_COEFFICIENT_PCT = 0.23
+MACKLIN_EXPONENT = 4.4
+MACKLIN_LOWEST_LOAD_FACTOR = 0.2
 
 _ANGLE_GRID_DEG = np.linspace(1.0, 89.0, 89)  # first search of the wedge angle, every degree
 _REFINE_ROUNDS = 4  # each round narrows the bracket tenfold: 1 deg -> 1e-4 deg
@@ -314,7 +331,8 @@ def broms_bennermark_stability_ratio(overburden, undrained_strength, support_pre
 
     Returns
     -------
-    ndarray  N. The face is taken as stable for N <= `BROMS_BENNERMARK_CRITICAL_N` (about 6). [-]
+    ndarray  N. The face is taken as stable for N <= `BROMS_BENNERMARK_CRITICAL_N` (about 6); its movements stay
+             small for N below about 2 to 4 (Mair 1979; O'Reilly 1988; from memory). [-]
 
     References
     ----------
@@ -324,23 +342,115 @@ def broms_bennermark_stability_ratio(overburden, undrained_strength, support_pre
 
 
 def broms_bennermark_support(overburden, undrained_strength, critical_n=BROMS_BENNERMARK_CRITICAL_N, surcharge=0.0):
-    """Total face support at the axis that brings the stability ratio down to the critical value (Broms &
-    Bennermark 1967).
+    """Total face support at the axis that brings the stability ratio down to a chosen value (Broms & Bennermark
+    1967): the critical value by default, or a working value such as `BROMS_BENNERMARK_ALLOWABLE_N`.
 
     Parameters
     ----------
     overburden, undrained_strength, surcharge : array_like  As in `broms_bennermark_stability_ratio`. [kPa]
-    critical_n : float                                      Critical N. [-]
+    critical_n : float                                      The N to hold. [-]
 
     Returns
     -------
-    ndarray  sigma_T = sigma_s + gamma z0 - N_crit c_u; negative where the clay face stands without support. [kPa]
+    ndarray  sigma_T = sigma_s + gamma z0 - N c_u; negative where the clay face stands without support. [kPa]
 
     References
     ----------
-    [BB67]; methods.md section 7.1 a (from memory).
+    [BB67]; methods.md section 7.1 a (from memory); [Mair79], [OR88] for the working range of N (from memory).
     """
     return _arr(surcharge) + _arr(overburden) - critical_n * _arr(undrained_strength)
+
+
+def jaky_k0(friction_angle_deg):
+    """Coefficient of earth pressure at rest of a normally consolidated soil, K0 = 1 - sin phi' (Jaky 1944).
+
+    Parameters
+    ----------
+    friction_angle_deg : array_like  Effective friction angle phi'. [deg]
+
+    Returns
+    -------
+    ndarray  K0 = 1 - sin phi'. [-]
+
+    References
+    ----------
+    [Jaky44] (from memory); methods.md section 7.2 uses it for the side shear of the lifted block.
+    """
+    return 1.0 - np.sin(np.radians(_arr(friction_angle_deg)))
+
+
+def cavity_initial_effective_stress(effective_vertical, k0):
+    """Initial effective stress around a bore for the cylindrical cavity-expansion limit: the mean of the two
+    principal stresses in the plane normal to the bore, sigma'_0 = sigma'_v (1 + K0) / 2.
+
+    The cavity-expansion solution of methods.md section 7.3 assumes the same initial stress all round the bore; in
+    the ground the vertical stress is sigma'_v and the horizontal stress K0 sigma'_v. Their mean is the isotropic
+    stress that stands for both (the tool's choice; K0 = 1 gives back sigma'_v, the value of the check values of
+    methods.md section 7.3).
+
+    Parameters
+    ----------
+    effective_vertical : array_like  Effective vertical stress sigma'_v at the place. [kPa]
+    k0 : array_like                  Earth pressure coefficient at rest K0 = sigma'_h / sigma'_v. [-]
+
+    Returns
+    -------
+    ndarray  sigma'_0 = sigma'_v (1 + K0) / 2. [kPa]
+
+    References
+    ----------
+    [LH88] for the cavity-expansion limit that takes sigma'_0; [Jaky44] for K0 (from memory).
+    """
+    return _arr(effective_vertical) * (1.0 + _arr(k0)) / 2.0
+
+
+def davis_heading_stability_ratio(cover, diameter):
+    """Stability ratio at collapse of a tunnel heading supported up to the face, N_TC = 4 ln(2 C/D + 1): the lower
+    bound for a spherical cavity in undrained ground (Davis et al. 1980).
+
+    Parameters
+    ----------
+    cover : array_like     Cover from the surface (or river bed) to the crown, C, >= 0. [m]
+    diameter : array_like  Outer diameter D, > 0. [m]
+
+    Returns
+    -------
+    ndarray  N_TC. 0 at zero cover; 4 ln 3 = 4.39 at C/D = 1; 4 ln 5 = 6.44 at C/D = 2. [-]
+
+    Notes
+    -----
+    A closed face held up to the face is the heading with no unsupported length (P = 0). The centrifuge collapses of
+    Kimura & Mair (1981) for P/D = 0 lie close to or above this lower bound (from memory), so the load factor
+    N / N_TC it gives is on the high side.
+
+    References
+    ----------
+    [Davis80], the thick-sphere lower bound, weightless ground (from memory); [KM81] for the centrifuge values;
+    methods.md section 1 names Kimura & Mair (1981) as the source of N_TC for Macklin's load factor.
+    """
+    return 4.0 * np.log(2.0 * _arr(cover) / _arr(diameter) + 1.0)
+
+
+def macklin_volume_loss_pct(load_factor):
+    """Volume loss of a tunnel in overconsolidated clay from its load factor, VL = 0.23 exp(4.4 LF) % (Macklin
+    1999).
+
+    Parameters
+    ----------
+    load_factor : array_like  LF = N / N_TC, the stability ratio over its value at collapse. The fit holds for
+                              LF >= 0.2 (`MACKLIN_LOWEST_LOAD_FACTOR`); the formula is returned as it is, the
+                              caller decides what to do outside that range. [-]
+
+    Returns
+    -------
+    ndarray  VL. [%] (methods.md section 1, computed there: LF 0.2 -> 0.55 %, 0.3 -> 0.86 %, 0.5 -> 2.08 %,
+             0.7 -> 5.0 %.)
+
+    References
+    ----------
+    [Mac99]; methods.md section 1 (the fit from memory; the definition LF = N / N_TC confirmed there).
+    """
+    return MACKLIN_COEFFICIENT_PCT * np.exp(MACKLIN_EXPONENT * _arr(load_factor))
 
 
 def uplift_resistance_with_shear(total_stress_crown, width, thickness, unit_weight, friction_angle_deg, cohesion,
@@ -370,7 +480,7 @@ def uplift_resistance_with_shear(total_stress_crown, width, thickness, unit_weig
     cover). The layered sum integrates the same side shear through each layer.
     """
     t, g, f, c = np.broadcast_arrays(*(_layers(v) for v in (thickness, unit_weight, friction_angle_deg, cohesion)))
-    k = 1.0 - np.sin(np.radians(f)) if lateral_ratio is None else np.broadcast_to(_arr(lateral_ratio), t.shape)
+    k = jaky_k0(f) if lateral_ratio is None else np.broadcast_to(_arr(lateral_ratio), t.shape)
     top = np.concatenate([np.zeros(t.shape[:-1] + (1,)), np.cumsum(g * t, axis=-1)[..., :-1]], axis=-1)
     shear = c * t + k * np.tan(np.radians(f)) * (top * t + g * t * t / 2.0)
     return _arr(total_stress_crown) + 2.0 / _arr(width) * shear.sum(axis=-1)
@@ -383,7 +493,9 @@ def delft_fracture_pressure(effective_stress, pore_pressure, friction_angle_deg,
 
     Parameters
     ----------
-    effective_stress : array_like    Initial effective stress around the bore, sigma'_0 (here sigma'_v). [kPa]
+    effective_stress : array_like    Initial effective stress around the bore, sigma'_0 (methods.md section 7.3
+                                     takes sigma'_v; `cavity_initial_effective_stress` gives the mean in-plane
+                                     stress from K0). [kPa]
     pore_pressure : array_like       Pore water pressure at the bore, u. [kPa]
     friction_angle_deg : array_like  phi', 0 to 90; where it is 0 the undrained limit is returned, with `cohesion`
                                      as c_u and sigma'_0 + u as the total stress. [deg]

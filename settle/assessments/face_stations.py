@@ -6,7 +6,9 @@ The procedure, for one drive (`face_stations`):
    alignment (where the cover changes its trend), where the crown, axis or invert crosses the top of a layer or the
    groundwater level, and at both ends of every river reach and support reach. A reach end is a step: a second
    station `STEP_M` (10 mm) on its other side shows the values there (river reach: both ends inside, the extra
-   stations outside; support reach: from its start up to, not including, its end).
+   stations outside; support reach: from its start up to, not including, its end). No two stations lie closer than
+   `MERGE_M` (5 mm) or print alike to 0.01 m: one stands for them, the drive's ends first, then the reach ends and
+   their steps, then the vertices and crossings, then the regular stations.
 2. At each station the ground surface is `GroundModel.surface_level(x, y)`, except in a river reach, where it is the
    river's `bed_level_m` and the river's `water_level_m` stands above it. Cover is measured from that surface to the
    crown. The water table is the river's water level in a river reach; elsewhere the groundwater level, taken at the
@@ -27,18 +29,25 @@ The procedure, for one drive (`face_stations`):
      water_pressure_factor u + earth_pressure_factor s', checked at the crown, the axis and the invert and brought
      to the crown through the slurry column (`axis_to_crown`); the largest governs.
    - undrained, where the layer at the axis is cohesive: Broms & Bennermark (1967). `stability_ratio_n` is N with no
-     support (flagged `n_above_critical` above the critical value); the total support at the axis that brings N down
-     to the critical value, brought to the crown, is a second requirement.
+     support (flagged `n_above_critical` above `critical_stability_ratio`, 6: collapse); the total support at the
+     axis that holds N at the working level `allowable_stability_ratio` (3: face movements stay small below N of
+     about 2 to 4, Mair 1979, O'Reilly 1988, from memory), brought to the crown, is a second requirement
+     (`min_governed_by` "broms_bennermark" where it governs).
    - `support_min_kpa` = the larger requirement + `support_margin_kpa`.
 5. Maximum support at the crown, `support_max_kpa`: the smaller of
    - uplift: `blowout_kpa` (the total vertical stress at the crown, soil and free water) / `blowout_factor`, or, with
      `blowout_side_shear`, the block lifted against its weight and the shear on its sides
      (`uplift_with_shear_kpa`) / `blowout_factor`;
-   - fracture: the Delft cavity-expansion pressure (Luger & Hergarden 1988) at the axis of the layer there
-     (undrained form in a cohesive layer, drained otherwise), brought to the crown, / `fracture_factor`. The bore
-     radius is D/2 (the outer diameter is the excavated diameter); the largest plastic radius is a share of the
-     cover, and never less than D/2 (then the limit is the pressure at first yield). Not computed (NaN, and a
-     warning) where the layer at the axis has no `shear_modulus_mpa`.
+   - fracture: the Delft cavity-expansion pressure (Luger & Hergarden 1988) at the crown, where the confinement is
+     least, `fracture_kpa`, / `fracture_factor`. The layer is the one just above the crown (undrained form in a
+     cohesive layer, drained otherwise); the initial effective stress is the mean of the vertical and horizontal
+     effective stresses in the plane of the face, sigma'_0 = sigma'_v,crown (1 + K0) / 2, with the layer's `k0`
+     or Jaky's K0 = 1 - sin phi' (`cavity_initial_effective_stress`); the pore pressure is that at the crown (in
+     clay the total stress sigma'_0 + u). The bore radius is D/2 (the outer diameter is the excavated diameter);
+     the largest plastic radius is a share of the cover, and never less than D/2 (then the limit is the pressure
+     at first yield). Not computed (NaN, and a warning) where the layer at the crown has no `shear_modulus_mpa`.
+     `fracture_axis_kpa` keeps, for reference, the value at the axis from sigma'_v and the layer there, brought to
+     the crown; it limits nothing.
 6. The window. The operator holds a target crown pressure that swings by +/- the operating tolerance of the support
    mode of the reach (plain slurry or an air cushion). The lowest target that keeps every swing above the minimum
    is `support_min_kpa + tolerance`; the highest that keeps every swing below the maximum is
@@ -48,6 +57,18 @@ The procedure, for one drive (`face_stations`):
    the maximum and the tolerance on both sides; nothing else. status: "closed" where window_kpa < 0, "narrow" where
    0 <= window_kpa < window_margin_kpa, "open" otherwise. `low_cover` flags cover < low_cover_diameters x D (a rule
    of the trade, common practice).
+
+7. Volume loss implied by the support, where the layer at the axis is cohesive (NaN elsewhere: the fit is for
+   clay). With the face at `support_min_kpa` (the lowest the pressure goes when the target is held in the window),
+   brought to the axis, the stability ratio is `stability_ratio_at_min_n` N = (sigma_v + q - sigma_T) / c_u; the
+   ratio at collapse of a closed face, `critical_stability_ratio_tc` N_TC = 4 ln(2 C/D + 1) (Davis et al. 1980
+   lower bound, from memory; it lies at or below the centrifuge values of Kimura & Mair 1981, so LF errs high);
+   `load_factor` LF = N / N_TC; `implied_volume_loss_pct` VL = 0.23 exp(4.4 LF) % (Macklin 1999, from memory). The
+   fit holds for LF >= 0.2: below (and where N < 0) the value at LF = 0.2, 0.55 %, is given, an upper estimate:
+   VL grows with LF, and the fit says nothing of smaller values. Above LF = 1 the face is at collapse by N_TC and
+   the value at LF = 1 (18.7 %) is given. `design_volume_loss_pct` is the drive's volume loss at the station
+   (its reach's, when `design_drive` is given); `implied_above_design` flags, and a warning names, the stations
+   where the implied value exceeds it.
 
 All pressures are at crown level, kPa, compression positive; levels in m up positive; chainage in m along the 3-D
 axis. These are planning bounds: the operating pressures are set and reviewed by the responsible engineer, under
@@ -60,16 +81,19 @@ from typing import NamedTuple
 
 import numpy as np
 
+from ..engine.elements import reach_values
 from ..errors import InputError
 from ..inputs.face_settings import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach,  # noqa: F401
                                     check_face_options, check_layer_strengths, check_numbered_rivers,
                                     check_support_reaches, river_label, support_label)
 from ..inputs.ground import GroundModel
+from ..inputs.model import Drive
 from ..inputs.route import DriveResult, position_at
 from . import face_methods as face
 
 STATUSES = ("open", "narrow", "closed")  # the status vocabulary, from best to worst
-SAME_CHAINAGE_M = 1e-3  # stations closer than this are one station [m]
+SAME_CHAINAGE_M = 1e-3  # the end of a drive takes the support mode of the chainage this much before it [m]
+MERGE_M = 5e-3  # no two stations of a drive lie closer than this: the nearer ones are merged [m]
 STEP_M = 0.01  # a second station this far on the other side of a reach end shows the step there [m]
 LEVEL_TOLERANCE_M = 1e-3  # a river bed this little above the ground is still at the ground [m]
 
@@ -103,12 +127,12 @@ class FaceStations:
     wedge_angle_deg: np.ndarray
     wedge_silo_stress_kpa: np.ndarray  # sigma'_v of the silo on the wedge
     stability_ratio_n: np.ndarray  # Broms & Bennermark N without support; NaN where the axis is not in clay
-    n_above_critical: np.ndarray  # bool
+    n_above_critical: np.ndarray  # bool: stability_ratio_n above critical_stability_ratio (collapse)
     support_min_kpa: np.ndarray
-    min_governed_by: np.ndarray  # "wedge_silo" | "broms_bennermark"
+    min_governed_by: np.ndarray  # "wedge_silo" | "broms_bennermark" (N held at allowable_stability_ratio)
     blowout_kpa: np.ndarray  # total vertical stress at the crown, no factor
     uplift_with_shear_kpa: np.ndarray  # blow-out with shear on the block's sides, no factor
-    fracture_kpa: np.ndarray  # Delft, brought to the crown, no factor; NaN where not computed
+    fracture_kpa: np.ndarray  # Delft at the crown, initial stress from K0, no factor; NaN where not computed
     support_max_kpa: np.ndarray
     max_limited_by: np.ndarray  # "blowout" | "uplift_shear" | "fracture"
     support_mode: np.ndarray  # "slurry" | "air_cushion"
@@ -119,6 +143,18 @@ class FaceStations:
     low_cover_limit_m: float = np.nan  # low_cover_diameters x D
     slurry_unit_weight_kn_m3: float = 11.0
     warnings: list[str] = field(default_factory=list)
+    # Delft at the axis from sigma'_v (the value used before the crown governed), brought to the crown, no factor;
+    # for reference only. [kPa]
+    fracture_axis_kpa: np.ndarray = field(default_factory=lambda: np.empty(0))
+    # Working level in clay (NaN where the axis is not in a cohesive layer): N with the face at support_min_kpa,
+    # N_TC of a closed face at this C/D (Davis et al. 1980), LF = N / N_TC, and the volume loss that LF implies
+    # (Macklin 1999), against the design volume loss of the reach (NaN when the drive's inputs were not given).
+    stability_ratio_at_min_n: np.ndarray = field(default_factory=lambda: np.empty(0))  # [-]
+    critical_stability_ratio_tc: np.ndarray = field(default_factory=lambda: np.empty(0))  # [-]
+    load_factor: np.ndarray = field(default_factory=lambda: np.empty(0))  # [-]
+    implied_volume_loss_pct: np.ndarray = field(default_factory=lambda: np.empty(0))  # [%]
+    design_volume_loss_pct: np.ndarray = field(default_factory=lambda: np.empty(0))  # [%]
+    implied_above_design: np.ndarray = field(default_factory=lambda: np.empty(0, dtype=bool))  # bool
 
     def __len__(self) -> int:
         return len(self.chainage_m)
@@ -182,26 +218,55 @@ def _crossings(chain, levels, targets):
     return (c0 + np.nan_to_num(frac) * (c1 - c0))[hit]
 
 
+def _spread(groups, lo: float, hi: float) -> np.ndarray:
+    """Chainages from groups of candidates, the first group first, none closer than MERGE_M to another and no two
+    printed alike to 0.01 m (as face_pressures.csv prints them): a candidate too near one already kept is merged
+    into it (dropped). [m]"""
+    kept = np.empty(0)
+    rank = np.empty(0, dtype=int)
+    for g, group in enumerate(groups):
+        c = np.unique(np.asarray(group, dtype=float))
+        c = c[(c >= lo) & (c <= hi)]
+        if len(kept) and len(c):
+            i = np.searchsorted(kept, c)
+            gap = np.minimum(np.abs(c - kept[np.clip(i - 1, 0, len(kept) - 1)]),
+                             np.abs(kept[np.clip(i, 0, len(kept) - 1)] - c))
+            c = c[gap >= MERGE_M]
+        mine = []
+        for value in c:  # sorted: each one kept only if far enough from the last one of the group kept
+            if not mine or value - mine[-1] >= MERGE_M:
+                mine.append(value)
+        order = np.argsort(np.concatenate([kept, mine]), kind="stable")
+        kept = np.concatenate([kept, mine])[order]
+        rank = np.concatenate([rank, np.full(len(mine), g)])[order]
+    printed = np.array([f"{v:.2f}" for v in kept])
+    same = np.flatnonzero(printed[1:] == printed[:-1])  # pairs (k, k + 1) that would print alike
+    drop = np.where(rank[same + 1] >= rank[same], same + 1, same)  # the later group gives way; equal: the second
+    return np.delete(kept, drop)
+
+
 def station_chainages(drive: DriveResult, ground: GroundModel, rivers, spacing_m: float,
                       support_reaches=()) -> np.ndarray:
-    """Chainages of the stations of a drive (see the module docstring, step 1), sorted, none closer than 1 mm. [m]"""
+    """Chainages of the stations of a drive (see the module docstring, step 1), sorted. [m]
+
+    No two lie closer than MERGE_M (5 mm), nor print alike to 0.01 m. Where candidates are that close, one station
+    stands for them all, chosen in this order: the drive's ends; the ends of river and support reaches and their
+    step stations (STEP_M, 10 mm, on the other side); the vertices and the level crossings; the regular stations."""
     chain = drive.chainage_m
     axis = drive.axis_xyz_m[:, 2]
     tops = np.array([layer.top_level_m for layer in ground.ground.layers], dtype=float)
     targets = np.append(tops[1:], ground.ground.groundwater_level_m)
     half = drive.outer_diameter_m / 2.0
-    hard = [chain] + [_crossings(chain, axis + off, targets) for off in (half, 0.0, -half)]
-    hard += [[r.from_chainage_m - STEP_M, r.from_chainage_m, r.to_chainage_m, r.to_chainage_m + STEP_M]
+    ends = [chain[0], chain[-1]]
+    steps = [[r.from_chainage_m - STEP_M, r.from_chainage_m, r.to_chainage_m, r.to_chainage_m + STEP_M]
              for r in rivers]
-    hard += [[r.from_chainage_m - STEP_M, r.from_chainage_m, r.to_chainage_m - STEP_M, r.to_chainage_m]
-             for r in support_reaches]
-    hard = np.unique(np.concatenate([np.asarray(h, dtype=float) for h in hard]))
-    hard = hard[(hard >= chain[0]) & (hard <= chain[-1])]
-    hard = hard[np.concatenate([[True], np.diff(hard) > SAME_CHAINAGE_M])]  # the first of each cluster
-    hard[-1] = chain[-1]  # the last cluster holds the end of the drive: keep the end exactly
+    steps += [[r.from_chainage_m - STEP_M, r.from_chainage_m, r.to_chainage_m - STEP_M, r.to_chainage_m]
+              for r in support_reaches]
+    kinks = [chain] + [_crossings(chain, axis + off, targets) for off in (half, 0.0, -half)]
     regular = np.arange(chain[0], chain[-1], spacing_m)
-    gap = np.abs(regular[:, None] - hard[None, :]).min(axis=1)
-    return np.sort(np.concatenate([hard, regular[gap > SAME_CHAINAGE_M]]))
+    groups = [ends, np.concatenate([np.asarray(h, dtype=float) for h in steps] or [np.empty(0)]),
+              np.concatenate(kinks), regular]
+    return _spread(groups, chain[0], chain[-1])
 
 
 def _runs(chain, flag) -> str:
@@ -250,6 +315,7 @@ class _Layers(NamedTuple):
     undrained_kpa: np.ndarray  # NaN where not given
     shear_modulus_kpa: np.ndarray  # NaN where not given
     cohesive: np.ndarray  # bool
+    k0: np.ndarray  # earth pressure coefficient at rest: the layer's k0, or Jaky's 1 - sin phi'
 
 
 def _check_inputs(drive: DriveResult, strengths, layers, rivers, options: FaceOptions, support_reaches,
@@ -351,7 +417,8 @@ def _layer_table(layers, strengths) -> _Layers:
                                 for s in strengths]),
         shear_modulus_kpa=np.array([np.nan if s.shear_modulus_mpa is None else s.shear_modulus_mpa * 1e3
                                     for s in strengths]),
-        cohesive=np.array([layer.behaviour == "cohesive" for layer in layers]))
+        cohesive=np.array([layer.behaviour == "cohesive" for layer in layers]),
+        k0=np.array([face.jaky_k0(s.friction_angle_deg) if s.k0 is None else s.k0 for s in strengths], dtype=float))
 
 
 def _stresses(places: _Places, lay: _Layers) -> _Stresses:
@@ -401,40 +468,68 @@ def _axis_layer(axis, lay: _Layers):
 
 
 def _broms_bennermark_minimum(d: float, tot_a, clay, cu, q, options: FaceOptions):
-    """Undrained minimum where the axis is in clay: stability ratio N and the requirement at the crown. [-, kPa]"""
+    """Undrained minimum where the axis is in clay: stability ratio N without support, and the requirement at the
+    crown that holds N at the working level `allowable_stability_ratio`. [-, kPa]"""
     gs = options.slurry_unit_weight_kn_m3
     with np.errstate(invalid="ignore"):
         n_ratio = np.where(clay, face.broms_bennermark_stability_ratio(tot_a, np.where(clay, cu, 1.0), 0.0, q), np.nan)
     undrained = np.where(clay, face.axis_to_crown(
-        face.broms_bennermark_support(tot_a, np.where(clay, cu, 0.0), options.critical_stability_ratio, q), gs, d),
+        face.broms_bennermark_support(tot_a, np.where(clay, cu, 0.0), options.allowable_stability_ratio, q), gs, d),
         -np.inf)
     return n_ratio, undrained
 
 
+def _implied_volume_loss(d: float, cover, tot_a, clay, cu, q, support_min, options: FaceOptions):
+    """Where the axis is in clay: N with the face at support_min (brought to the axis), N_TC at C/D, the load
+    factor and the volume loss it implies (Macklin 1999; LF held within 0.2 to 1, see the module docstring).
+    NaN elsewhere. [-, -, -, %]"""
+    held = face.crown_to_axis(support_min, options.slurry_unit_weight_kn_m3, d)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        n_held = np.where(clay, face.broms_bennermark_stability_ratio(tot_a, np.where(clay, cu, 1.0), held, q), np.nan)
+        n_tc = np.where(clay, face.davis_heading_stability_ratio(cover, d), np.nan)
+        lf = n_held / n_tc
+    implied = face.macklin_volume_loss_pct(np.clip(lf, face.MACKLIN_LOWEST_LOAD_FACTOR, 1.0))
+    return n_held, n_tc, lf, np.where(clay, implied, np.nan)
+
+
 def _uplift_limit(d: float, s: _Stresses, cover_segments, lay: _Layers, options: FaceOptions):
-    """Blow-out with side shear, unfactored, and the factored uplift limit at the crown. [kPa]"""
+    """Blow-out with side shear (K0 of each cover layer), unfactored, and the factored uplift limit at the crown.
+    [kPa]"""
     t_cov, j_cov, g_cov = cover_segments
     tot_c = s.total_crown
-    shear = face.uplift_resistance_with_shear(tot_c, d, t_cov, g_cov, lay.friction_deg[j_cov], lay.cohesion_kpa[j_cov])
+    shear = face.uplift_resistance_with_shear(tot_c, d, t_cov, g_cov, lay.friction_deg[j_cov], lay.cohesion_kpa[j_cov],
+                                              lay.k0[j_cov])
     uplift = (shear if options.blowout_side_shear else tot_c) / options.blowout_factor
     return shear, uplift
 
 
-def _fracture_at_crown(d: float, cover, s: _Stresses, j_axis, clay, cu, lay: _Layers, options: FaceOptions):
-    """Delft fracture pressure brought to the crown, unfactored (NaN where the axis layer has no G), and has-G. [kPa]"""
+def _delft(d: float, cover, sigma_eff, u, j, lay: _Layers, options: FaceOptions):
+    """Delft cavity-expansion pressure at one level (unfactored), with the initial effective stress given and the
+    properties of layer j: undrained in a cohesive layer, drained otherwise; NaN where the layer has no G. [kPa]"""
+    clay = lay.cohesive[j]
+    g = lay.shear_modulus_kpa[j]
+    has_g = np.isfinite(g)
     half = d / 2.0
-    g_axis = lay.shear_modulus_kpa[j_axis]
-    has_g = np.isfinite(g_axis)
-    ratio = np.where(clay, options.fracture_radius_cohesive, options.fracture_radius_granular)
-    plastic = np.maximum(ratio * cover, half)
-    safe_g = np.where(has_g, g_axis, 1.0)
-    p_axis = np.where(clay,
-                      face.delft_fracture_pressure_undrained(s.total_axis, np.where(clay, cu, 1.0), safe_g, half,
-                                                             plastic),
-                      face.delft_fracture_pressure(s.effective_axis, s.water_axis, lay.friction_deg[j_axis],
-                                                   lay.cohesion_kpa[j_axis], safe_g, half, plastic))
-    fracture = np.where(has_g, face.axis_to_crown(p_axis, options.slurry_unit_weight_kn_m3, d), np.nan)
-    return fracture, has_g
+    plastic = np.maximum(np.where(clay, options.fracture_radius_cohesive, options.fracture_radius_granular) * cover,
+                         half)
+    safe_g = np.where(has_g, g, 1.0)
+    p = np.where(clay,
+                 face.delft_fracture_pressure_undrained(sigma_eff + u, np.where(clay, lay.undrained_kpa[j], 1.0),
+                                                        safe_g, half, plastic),
+                 face.delft_fracture_pressure(sigma_eff, u, lay.friction_deg[j], lay.cohesion_kpa[j], safe_g, half,
+                                              plastic))
+    return np.where(has_g, p, np.nan), has_g
+
+
+def _fracture(d: float, places: _Places, s: _Stresses, j_axis, lay: _Layers, options: FaceOptions):
+    """Delft fracture pressure at the crown (the layer just above it, initial stress sigma'_v (1 + K0) / 2), and
+    for reference at the axis (the layer there, sigma'_v) brought to the crown; both unfactored, NaN where the
+    layer has no G; and has-G at the crown. [kPa]"""
+    j_crown = _layer_index(places.crown_m + LEVEL_TOLERANCE_M, lay.tops_m)
+    initial = face.cavity_initial_effective_stress(s.effective_crown, lay.k0[j_crown])
+    crown, has_g = _delft(d, places.cover_m, initial, s.water_crown, j_crown, lay, options)
+    axis, _ = _delft(d, places.cover_m, s.effective_axis, s.water_axis, j_axis, lay, options)
+    return crown, face.axis_to_crown(axis, options.slurry_unit_weight_kn_m3, d), j_crown, has_g
 
 
 def _maximum_support(uplift, fracture, options: FaceOptions):
@@ -445,13 +540,23 @@ def _maximum_support(uplift, fracture, options: FaceOptions):
     return support_max, max_by
 
 
-def _no_fracture_warnings(drive: DriveResult, st, layers, j_axis, has_g) -> list[str]:
-    """A warning where the layer at the axis has no shear modulus, so no fracture limit."""
+def _no_fracture_warnings(drive: DriveResult, st, layers, j_crown, has_g) -> list[str]:
+    """A warning where the layer at the crown has no shear modulus, so no fracture limit."""
     if not (~has_g).any():
         return []
-    names = sorted({layers[j].name for j in j_axis[~has_g]})
-    return [(f'drive "{drive.name}": no shear_modulus_mpa for layer(s) {", ".join(names)} at the axis; '
+    names = sorted({layers[j].name for j in j_crown[~has_g]})
+    return [(f'drive "{drive.name}": no shear_modulus_mpa for layer(s) {", ".join(names)} at the crown; '
              f"no fracture limit at chainage {_runs(st, ~has_g)} (the uplift limit alone)")]
+
+
+def _volume_loss_warnings(drive: DriveResult, st, implied, design, above) -> list[str]:
+    """A warning where the volume loss implied by the minimum support exceeds the design volume loss."""
+    if not above.any():
+        return []
+    k = int(np.argmax(np.where(above, implied - design, -np.inf)))
+    return [(f'drive "{drive.name}": the volume loss implied by the face support in clay (Macklin 1999, at the '
+             f"minimum support) exceeds the design volume loss at chainage {_runs(st, above)}; largest excess "
+             f"{implied[k]:.2f} % against {design[k]:.2f} % at {st[k]:.1f} m")]
 
 
 def _support_modes(st, options: FaceOptions, support_reaches):
@@ -485,7 +590,7 @@ def _window_warnings(drive: DriveResult, st, window, status) -> list[str]:
 
 
 def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(), options: FaceOptions | None = None,
-                  support_reaches=(), where: str = "project") -> FaceStations:
+                  support_reaches=(), where: str = "project", design_drive: Drive | None = None) -> FaceStations:
     """Minimum and maximum face support pressure, and the window between them, at stations along one drive.
 
     Parameters
@@ -498,6 +603,9 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
     options : FaceOptions          Settings; defaults as documented there.
     support_reaches : sequence of SupportReach   This drive's support modes; elsewhere `options.support_mode`.
     where : str                    The project file, for messages.
+    design_drive : Drive, optional The same drive as the project file gives it: its volume loss per reach, against
+                                   which the volume loss implied by the support is checked (step 7). Without it
+                                   design_volume_loss_pct is NaN and nothing is compared.
 
     Returns
     -------
@@ -508,10 +616,11 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
     mine = _check_inputs(drive, strengths, layers, rivers, options, support_reaches, where)
     d = float(drive.outer_diameter_m)
     places, warnings = _stations_and_places(drive, ground, mine, options, support_reaches, where)
+    st = places.chainage_m
     lay = _layer_table(layers, strengths)
     s = _stresses(places, lay)
 
-    # Minimum: wedge-silo (drained); Broms & Bennermark (undrained) where the axis is in a cohesive layer.
+    # Minimum: wedge-silo (drained); Broms & Bennermark at the working N (undrained) where the axis is in clay.
     cover_segments = _cover_segments(places, lay)
     q = np.where(places.in_river, 0.0, options.surcharge_kpa)
     s_eff, angle, silo, drained = _wedge_silo_minimum(d, places, s, cover_segments, q, lay, options)
@@ -520,20 +629,27 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
     support_min = np.maximum(drained, undrained) + options.support_margin_kpa
     min_by = np.where(undrained > drained, "broms_bennermark", "wedge_silo")
 
-    # Maximum: uplift (with or without side shear) and fracture.
+    # What the minimum means for the ground in clay: the volume loss it implies, against the design.
+    n_held, n_tc, lf, implied = _implied_volume_loss(d, places.cover_m, s.total_axis, clay, cu, q, support_min, options)
+    design = (np.full(len(st), np.nan) if design_drive is None else 100.0 * reach_values(design_drive, st)[0])
+    with np.errstate(invalid="ignore"):
+        above = np.isfinite(implied) & np.isfinite(design) & (implied > design)
+    warnings += _volume_loss_warnings(drive, st, implied, design, above)
+
+    # Maximum: uplift (with or without side shear) and fracture at the crown.
     shear, uplift = _uplift_limit(d, s, cover_segments, lay, options)
-    fracture, has_g = _fracture_at_crown(d, places.cover_m, s, j_axis, clay, cu, lay, options)
+    fracture, fracture_axis, j_crown, has_g = _fracture(d, places, s, j_axis, lay, options)
     support_max, max_by = _maximum_support(uplift, fracture, options)
-    warnings += _no_fracture_warnings(drive, places.chainage_m, layers, j_axis, has_g)
+    warnings += _no_fracture_warnings(drive, st, layers, j_crown, has_g)
 
     # Window.
-    mode, tol = _support_modes(places.chainage_m, options, support_reaches)
+    mode, tol = _support_modes(st, options, support_reaches)
     window, status = _window_and_status(support_min, support_max, tol, options)
     low_limit = options.low_cover_diameters * d
-    warnings += _window_warnings(drive, places.chainage_m, window, status)
+    warnings += _window_warnings(drive, st, window, status)
 
     return FaceStations(
-        drive=drive.name, outer_diameter_m=d, chainage_m=places.chainage_m, x_m=places.x_m, y_m=places.y_m,
+        drive=drive.name, outer_diameter_m=d, chainage_m=st, x_m=places.x_m, y_m=places.y_m,
         axis_level_m=places.axis_m, ground_level_m=places.ground_m, surface_level_m=places.surface_m,
         water_level_m=places.water_m, in_river=places.in_river, cover_m=places.cover_m,
         total_stress_crown_kpa=s.total_crown, effective_stress_crown_kpa=s.effective_crown,
@@ -546,4 +662,6 @@ def face_stations(drive: DriveResult, ground: GroundModel, strengths, rivers=(),
         max_limited_by=max_by.astype(object), support_mode=mode, tolerance_kpa=tol, window_kpa=window,
         status=status.astype(object), low_cover=places.cover_m < low_limit, low_cover_limit_m=low_limit,
         slurry_unit_weight_kn_m3=options.slurry_unit_weight_kn_m3, warnings=warnings,
+        fracture_axis_kpa=fracture_axis, stability_ratio_at_min_n=n_held, critical_stability_ratio_tc=n_tc,
+        load_factor=lf, implied_volume_loss_pct=implied, design_volume_loss_pct=design, implied_above_design=above,
     )

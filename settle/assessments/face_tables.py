@@ -13,7 +13,9 @@ FACE_STATION_FIELDS = ("drive", "chainage_m", "cover_m", "water_pressure_kpa", "
 FACE_STATION_EXTRA_FIELDS = ("support_mode", "in_river", "low_cover", "stability_ratio_n", "n_above_critical",
                              "fracture_kpa", "max_limited_by", "min_governed_by", "total_stress_crown_kpa",
                              "effective_stress_crown_kpa", "total_stress_axis_kpa", "effective_stress_axis_kpa",
-                             "water_pressure_axis_kpa", "tolerance_kpa")
+                             "water_pressure_axis_kpa", "tolerance_kpa", "fracture_axis_kpa",
+                             "stability_ratio_at_min_n", "critical_stability_ratio_tc", "load_factor",
+                             "implied_volume_loss_pct", "design_volume_loss_pct", "implied_above_design")
 OPERATOR_COLUMNS = ("drive", "chainage_m", "status", "support_mode", "tolerance_kpa", "hold_from_crown_kpa",
                     "hold_to_crown_kpa", "hold_from_axis_kpa", "hold_to_axis_kpa")
 

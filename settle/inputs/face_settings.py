@@ -9,11 +9,15 @@ import numpy as np
 from ..errors import InputError
 from .model import Layer
 from .published_defaults import (ANAGNOSTOU_KOVARI_SILO_RATIO, ANAGNOSTOU_KOVARI_WEDGE_RATIO,
-                                 BROMS_BENNERMARK_CRITICAL_N, GAMMA_W, MIN_COVER_DIAMETERS)
+                                 BROMS_BENNERMARK_ALLOWABLE_N, BROMS_BENNERMARK_CRITICAL_N, GAMMA_W,
+                                 MIN_COVER_DIAMETERS)
 
 SUPPORT_MODES = ("slurry", "air_cushion")
 FRICTION_ANGLE_RANGE_DEG = (0.0, 50.0)
 SLURRY_UNIT_WEIGHT_RANGE_KN_M3 = (GAMMA_W, 16.0)
+#: Range allowed for a layer's k0: a plausibility bound of the tool (about 0.3 in loose sand to 2 and more in heavily
+#: overconsolidated clay).
+K0_RANGE = (0.2, 3.0)
 
 
 @dataclass(frozen=True)
@@ -25,13 +29,17 @@ class LayerStrength:
     undrained_strength_kpa  undrained shear strength c_u, > 0: required for a cohesive layer, not allowed for a
                             granular one. [kPa]
     shear_modulus_mpa       shear modulus G for the Delft fracture pressure, > 0; optional (no fracture limit where
-                            the layer at the axis has none). [MPa]
+                            the layer at the crown has none). [MPa]
+    k0                      earth pressure coefficient at rest, sigma'_h / sigma'_v, 0.2 to 3; optional, default
+                            Jaky's 1 - sin(friction_angle_deg) (from memory). It sets the initial stress of the
+                            fracture limit and the side shear of the uplift limit. [-]
     """
 
     friction_angle_deg: float
     cohesion_kpa: float
     undrained_strength_kpa: float | None = None
     shear_modulus_mpa: float | None = None
+    k0: float | None = None
 
 
 @dataclass(frozen=True)
@@ -78,7 +86,11 @@ class FaceOptions:
     fracture_radius_cohesive      0.5   the same in cohesive ground (1/2; from memory, methods.md 7.3).
     silo_lateral_ratio            0.8   K_s (Anagnostou & Kovari 1994, from memory, methods.md 7.1 c).
     wedge_lateral_ratio           0.4   K_w (Anagnostou & Kovari 1994, from memory, methods.md 7.1 c).
-    critical_stability_ratio      6.0   Broms & Bennermark critical N (from memory, methods.md 7.1 a).
+    critical_stability_ratio      6.0   Broms & Bennermark critical N, at collapse (from memory, methods.md 7.1 a);
+                                        `n_above_critical` flags N without support above it.
+    allowable_stability_ratio     3.0   the N the minimum support holds in cohesive ground (working level): face
+                                        movements stay small below N of about 2 to 4 (Mair 1979; O'Reilly 1988;
+                                        from memory); more than 0, at most critical_stability_ratio.
     surcharge_kpa                 0.0   surface surcharge outside river reaches [kPa]; none by default.
     tolerance_air_cushion_kpa     10.0  operating tolerance +/- with an air cushion [kPa] (methods.md 7.1 c gives
                                         about +/-10 kPa for slurry shields, from memory).
@@ -103,6 +115,7 @@ class FaceOptions:
     silo_lateral_ratio: float = ANAGNOSTOU_KOVARI_SILO_RATIO
     wedge_lateral_ratio: float = ANAGNOSTOU_KOVARI_WEDGE_RATIO
     critical_stability_ratio: float = BROMS_BENNERMARK_CRITICAL_N
+    allowable_stability_ratio: float = BROMS_BENNERMARK_ALLOWABLE_N
     surcharge_kpa: float = 0.0
     tolerance_air_cushion_kpa: float = 10.0
     tolerance_slurry_kpa: float = 20.0
@@ -127,6 +140,7 @@ def check_face_options(options: FaceOptions, where: str = "project") -> None:
     """Raise InputError naming the [face] key whose value is out of range."""
     label = f"{where} [face]"
     lo_gs, hi_gs = SLURRY_UNIT_WEIGHT_RANGE_KN_M3
+    critical = options.critical_stability_ratio
     rules = {
         "face_station_spacing_m": (lambda v: v > 0, "a number of metres more than 0"),
         "slurry_unit_weight_kn_m3": (lambda v: lo_gs <= v <= hi_gs,
@@ -141,6 +155,8 @@ def check_face_options(options: FaceOptions, where: str = "project") -> None:
         "silo_lateral_ratio": (lambda v: 0 < v <= 3, "a ratio more than 0 and at most 3"),
         "wedge_lateral_ratio": (lambda v: 0 <= v <= 3, "a ratio from 0 to 3"),
         "critical_stability_ratio": (lambda v: v > 0, "a number more than 0"),
+        "allowable_stability_ratio": (lambda v: 0 < v <= critical, "a number more than 0 and at most "
+                                      f"critical_stability_ratio ({critical:g})" if _number(critical) else ""),
         "surcharge_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
         "tolerance_air_cushion_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
         "tolerance_slurry_kpa": (lambda v: v >= 0, "a number of kPa at least 0"),
@@ -183,6 +199,9 @@ def check_layer_strengths(strengths, layers: tuple[Layer, ...], where: str = "pr
         g = s.shear_modulus_mpa
         if g is not None and (not _number(g) or g <= 0):
             raise _bad(label, "shear_modulus_mpa", "a number of MPa more than 0", g)
+        lo_k0, hi_k0 = K0_RANGE
+        if s.k0 is not None and (not _number(s.k0) or not lo_k0 <= s.k0 <= hi_k0):
+            raise _bad(label, "k0", f"a number from {lo_k0:g} to {hi_k0:g}", s.k0)
 
 
 def _check_reach_ends(label: str, a, b) -> None:

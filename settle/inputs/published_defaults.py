@@ -13,6 +13,10 @@ GAMMA_W = 9.81
 #: Broms & Bennermark (1967) critical stability ratio: the face is taken as stable for N <= 6 (from memory,
 #: methods.md section 7.1 a).
 BROMS_BENNERMARK_CRITICAL_N = 6.0
+#: Stability ratio below which the face movements of a tunnel in clay stay small: about 2 to 4 (Mair 1979;
+#: O'Reilly 1988; from memory). The face support check holds N at or below 3, the middle of that range, as its
+#: working-level minimum in cohesive ground.
+BROMS_BENNERMARK_ALLOWABLE_N = 3.0
 #: Lateral stress ratio in the silo above the wedge, about 0.8 in Anagnostou & Kovari (1994) (from memory,
 #: methods.md section 7.1 c).
 ANAGNOSTOU_KOVARI_SILO_RATIO = 0.8

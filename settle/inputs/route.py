@@ -3,6 +3,11 @@ checks an engineer makes of them before anything is computed.
 
 The axis is the polyline through the given vertices (straight in 3-D between vertices). Chainage is measured along
 the 3-D axis from the launch shaft (the first vertex), starting at the drive's `start_chainage_m`.
+
+Cover is measured from the surface the tunnel passes under down to the crown: the ground surface model, or the
+river's bed level in a river reach when the drive is built with its rivers. A drive's minimum cover is one number,
+`DriveResult.min_cover_m`: the least cover over the route profile (every metre of chainage, every vertex and both
+ends of every river reach), shown everywhere to one rounding, `rounded_cover_m` (0.01 m).
 """
 from __future__ import annotations
 
@@ -14,6 +19,15 @@ from ..errors import InputError
 from .ground import GroundModel
 from .model import Drive
 from .published_defaults import MIN_COVER_DIAMETERS
+
+COVER_DECIMALS = 2  # cover is shown to 0.01 m everywhere
+PROFILE_SPACING_M = 1.0  # the route profile: every metre of chainage, and every vertex and river end
+
+
+def rounded_cover_m(value) -> float:
+    """A cover as every output shows it: rounded to 0.01 m (NaN stays NaN). [m]"""
+    return round(float(value), COVER_DECIMALS)
+
 
 @dataclass
 class DriveResult:
@@ -30,10 +44,13 @@ class DriveResult:
     excavated_to_m: float  # chainage of the face used in the run (end of drive when complete)
     lost_volume_m3: float  # sum over the excavated length of VL x pi D^2/4
     element_count: int
-    # The profile along the axis, every metre of chainage and at every vertex (for sections and figures).
+    # The profile along the axis, every metre of chainage, at every vertex and at both ends of every river reach
+    # (for the minimum cover, sections and figures).
     profile_chainage_m: np.ndarray = field(default_factory=lambda: np.empty(0))
     profile_ground_m: np.ndarray = field(default_factory=lambda: np.empty(0))  # ground surface level
     profile_axis_m: np.ndarray = field(default_factory=lambda: np.empty(0))  # axis level
+    # What the tunnel passes under: the ground, or the river's bed level in a river reach. Empty = the ground.
+    profile_surface_m: np.ndarray = field(default_factory=lambda: np.empty(0))
 
     @property
     def start_chainage_m(self) -> float:
@@ -42,6 +59,44 @@ class DriveResult:
     @property
     def end_chainage_m(self) -> float:
         return float(self.chainage_m[-1])
+
+    @property
+    def profile_cover_m(self) -> np.ndarray:
+        """Cover along the route profile: surface (river bed in a river reach) to crown. [m]"""
+        surface = self.profile_surface_m if len(self.profile_surface_m) else self.profile_ground_m
+        return surface - self.profile_axis_m - self.outer_diameter_m / 2.0
+
+    def least_cover_m(self, from_m: float, to_m: float, river: bool = True) -> float:
+        """Least cover over the route profile between two chainages, both included (NaN where none lies there);
+        river=False measures it from the ground surface model all through, for a reach outside a river that ends
+        at its bank. [m]"""
+        c = self.profile_chainage_m
+        inside = (c >= from_m) & (c <= to_m)
+        if not inside.any():
+            return float("nan")
+        ground = self.profile_ground_m - self.profile_axis_m - self.outer_diameter_m / 2.0
+        cover = self.profile_cover_m if river else ground
+        return float(np.min(cover[inside]))
+
+    def _least_cover(self) -> tuple[float, float]:
+        if len(self.profile_chainage_m):
+            cover, chain = self.profile_cover_m, self.profile_chainage_m
+        else:  # a drive made without its profile: the vertices
+            cover, chain = np.asarray(self.cover_m, dtype=float), self.chainage_m
+        k = int(np.nanargmin(cover))
+        return float(cover[k]), float(chain[k])
+
+    @property
+    def min_cover_m(self) -> float:
+        """The drive's minimum cover: the least over the route profile (every metre, every vertex, the river ends),
+        from the ground surface or, in a river reach, the river bed, to the crown. Not rounded: show it with
+        `rounded_cover_m`. [m]"""
+        return self._least_cover()[0]
+
+    @property
+    def min_cover_chainage_m(self) -> float:
+        """Chainage of `min_cover_m` (the first, where several places share it). [m]"""
+        return self._least_cover()[1]
 
 
 
@@ -74,8 +129,25 @@ def stations_along(chain: np.ndarray, breaks: np.ndarray, spacing_m: float) -> n
     return np.unique(np.concatenate([chain, breaks, regular]))
 
 
-def build_drive(drive: Drive, ground: GroundModel, project_file="") -> tuple[DriveResult, list[str]]:
-    """Axis, chainage, depth and cover of one drive, with the checks an engineer expects; returns warnings."""
+def _rivers_of(name: str, rivers) -> list:
+    return [r for r in rivers if r.drive == name]
+
+
+def _surface_under(mine, stations: np.ndarray, ground_level: np.ndarray) -> np.ndarray:
+    """The surface the tunnel passes under at the stations: the river's bed level in a river reach (both ends
+    included, as the face check takes it), the ground elsewhere. [m]"""
+    surface = np.array(ground_level, dtype=float)
+    for r in mine:
+        surface[(stations >= r.from_chainage_m - 1e-9) & (stations <= r.to_chainage_m + 1e-9)] = r.bed_level_m
+    return surface
+
+
+def build_drive(drive: Drive, ground: GroundModel, project_file="", rivers=()) -> tuple[DriveResult, list[str]]:
+    """Axis, chainage, depth and cover of one drive, with the checks an engineer expects; returns warnings.
+
+    `rivers` (the project's [[rivers]], `face_settings.River`; those of other drives are ignored) make the river
+    bed the surface of the cover within their reaches, as in the face check; without them the cover is measured
+    from the ground surface model everywhere. (The face check refuses a bed above the ground or below the crown.)"""
     label = f'{project_file} [[drives]] "{drive.name}"'
     xyz = np.column_stack([drive.alignment_xy, axis_levels(drive, ground)])
     surface = ground.surface_level(xyz[:, 0], xyz[:, 1])
@@ -89,7 +161,10 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="") -> tuple[Dri
         )
 
     # Check cover at regular stations too: a triangulated surface may dip between vertices.
-    stations = stations_along(chain, np.empty(0), 1.0)
+    mine = _rivers_of(drive.name, rivers)
+    river_ends = np.array([c for r in mine for c in (r.from_chainage_m, r.to_chainage_m)], dtype=float)
+    stations = stations_along(chain, river_ends[(river_ends >= chain[0]) & (river_ends <= chain[-1])],
+                              PROFILE_SPACING_M)
     at = position_at(xyz, chain, stations)
     s_level = ground.surface_level(at[:, 0], at[:, 1])
     cover = s_level - at[:, 2] - drive.outer_diameter_m / 2.0
@@ -100,18 +175,6 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="") -> tuple[Dri
             f"(cover {cover[k]:.2f} m; axis level {at[k, 2]:.2f} m, surface {s_level[k]:.2f} m); check the "
             f"alignment's vertical values ({drive.vertical}) and the ground surface"
         )
-
-    warnings = []
-    shallow = cover < MIN_COVER_DIAMETERS * drive.outer_diameter_m
-    if shallow.any():
-        runs = _runs(stations, shallow)
-        where = ", ".join(f"{a:.0f}-{b:.0f} m" for a, b in runs[:6]) + (" ..." if len(runs) > 6 else "")
-        warnings.append(
-            f'drive "{drive.name}": cover is less than {MIN_COVER_DIAMETERS:g} x the outer diameter '
-            f"({MIN_COVER_DIAMETERS * drive.outer_diameter_m:.2f} m; a rule of thumb of the trade) at chainage "
-            f"{where}; smallest {np.min(cover):.2f} m"
-        )
-
     if drive.face_chainage_m is not None and not chain[0] <= drive.face_chainage_m <= chain[-1]:
         raise InputError(
             f"{label}: face_chainage_m = {drive.face_chainage_m:g} is outside the drive "
@@ -140,8 +203,21 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="") -> tuple[Dri
         profile_chainage_m=stations,
         profile_ground_m=s_level,
         profile_axis_m=at[:, 2],
+        profile_surface_m=_surface_under(mine, stations, s_level),
     )
-    return result, warnings
+    return result, _cover_warnings(result)
+
+
+def _cover_warnings(d: DriveResult) -> list[str]:
+    """A warning where the cover along the route profile is under MIN_COVER_DIAMETERS x D, with its minimum."""
+    shallow = d.profile_cover_m < MIN_COVER_DIAMETERS * d.outer_diameter_m
+    if not shallow.any():
+        return []
+    runs = _runs(d.profile_chainage_m, shallow)
+    where = ", ".join(f"{a:.0f}-{b:.0f} m" for a, b in runs[:6]) + (" ..." if len(runs) > 6 else "")
+    return [f'drive "{d.name}": cover is less than {MIN_COVER_DIAMETERS:g} x the outer diameter '
+            f"({MIN_COVER_DIAMETERS * d.outer_diameter_m:.2f} m; a rule of thumb of the trade) at chainage "
+            f"{where}; smallest {rounded_cover_m(d.min_cover_m):.2f} m"]
 
 
 def _runs(x: np.ndarray, flag: np.ndarray) -> list[tuple[float, float]]:
