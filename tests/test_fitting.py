@@ -3,6 +3,7 @@
 Synthetic readings are made with the same forward model (settle.fitting.predicted_settlement_mm on the project with
 known values); noise is Gaussian with a fixed seed, stated in each test. Recovery is checked against the fit's own
 standard errors (within 3 standard errors), and the standard errors are checked to be small enough to mean something.
+The standard errors are clustered by monitoring point; their coverage is tested in tests/test_fit_uncertainty.py.
 """
 from __future__ import annotations
 
@@ -455,7 +456,8 @@ def test_fit_report_is_plain_json():
     (fit,) = back["fits"]
     assert fit["drive"] == "A" and fit["part"] == "whole drive"
     assert set(fit) >= {"volume_loss_pct", "trough_width_k", "volume_loss_pct_se", "trough_width_k_se",
-                        "readings_used", "rms_mm", "outliers"}
+                        "readings_used", "rms_mm", "outliers", "volume_loss_pct_ci95", "trough_width_k_ci95",
+                        "points_used", "volume_loss_pct_se_independent", "trough_width_k_se_independent"}
     assert back["readings"]["used"] == 9 and back["method"]["outlier_limit_sigma"] == 3.0
 
 

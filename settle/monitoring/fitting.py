@@ -33,14 +33,35 @@ Method
        sigmas is an outlier, reported by point id and date. With normal scatter alone about 0.3 % of readings lie
        beyond 3 sigma, so a few small "outliers" among many readings are expected.
     4. Final fit: ordinary least squares over the readings that are not outliers, from the robust solution. The
-       volume loss, K, `readings_used` and `rms_mm` are those of this fit; the standard errors are
-       sqrt(diag((J^T J)^-1 s^2)) with J the Jacobian at the solution and s^2 = sum r^2 / (n - p). A value at a bound
-       gets no standard error (NaN) and a warning: the readings do not hold it.
+       volume loss, K, `readings_used` and `rms_mm` are those of this fit. A value at a bound gets no standard error
+       (NaN) and a warning: the readings do not hold it.
     5. Element cuts depend slightly on K (the plan tolerance is a share of i), so steps 2-4 run on the cuts of the
        current K with i = K z0 updated in each element, and the cuts are rebuilt at the solution until they no
        longer change. `rms_mm` and the fitted settlements come from the forward model built afresh at the fitted
        values, at the project's precision: a re-run of the fitted project file gives the same numbers (to the six
        significant digits the file holds).
+
+Uncertainty (readings clustered by monitoring point)
+    Readings of one point taken on many days are not independent: an error that stays with the point (its datum,
+    its bedding, ground the model does not hold there) is in every one of them. The textbook standard errors
+    sqrt(diag((J^T J)^-1 s^2)), s^2 = sum r^2 / (n - p), count each reading as new information; with a persistent
+    offset per point they come out several times too small (about 2.2 times on the synthetic monitoring of
+    tests/test_fit_uncertainty.py). They are kept, for comparison only, as `*_se_independent`.
+    The standard errors (`*_se`) are cluster-robust instead (`cluster_robust_covariance`): the sandwich
+    (J^T J)^-1 (sum_g J_g^T u_g u_g^T J_g) (J^T J)^-1 over the G monitoring points g among the readings used, with
+    J the Jacobian of the final fit at the solution, J_g its rows for point g and u_g that point's residuals
+    adjusted for its leverage (CR2: u_g = (I - J_g (J^T J)^-1 J_g^T)^(-1/2) r_g). CR2 rather than CR1 (u_g = r_g,
+    times G/(G-1) (n-1)/(n-p)) because in a monitoring layout a few points (those near the centre line, passed by
+    the face) carry most of the information, which is where CR1 runs low; on the synthetic monitoring of
+    tests/test_fit_uncertainty.py CR2 covered the truth about 1 percentage point more often than CR1. Either allows
+    any correlation among the readings of a point and any scatter from point to point, and assumes the points
+    independent of each other (a datum error shared by a whole array is not covered).
+    The 95 % interval of each value (`*_ci95`, [low, high]) is value -/+ t(0.975, G-1) x standard error, Student's
+    t with G-1 degrees of freedom; it is not cut at the bounds of the value's range. With fewer than `FEW_POINTS`
+    points a warning says the standard errors are themselves uncertain; with one point there are none.
+    The sandwich, not a bootstrap that refits with points resampled: it costs one matrix product, where a bootstrap
+    costs a few hundred full fits (each as long as the fit itself). The outliers left out are taken as known; the
+    interval does not allow for that choice.
 
 Readings ahead of the face
     By default all readings are kept with equal weight. A reading's pull on the estimate is its sensitivity
@@ -61,6 +82,9 @@ Jones, B. D. & Clayton, C. R. I. (2013). Guidelines for Gaussian curve-fitting t
 scipy.optimize.least_squares documentation: the "trf" bounded trust-region method, the "soft_l1" loss
     rho(z) = 2 ((1 + z)^0.5 - 1) with z = (r / f_scale)^2, and the Jacobian at the solution (methods.md section 8
     cites the scipy curve_fit pages for the same machinery).
+Cameron, A. C. & Miller, D. L. (2015). A practitioner's guide to cluster-robust inference. J. Human Resources
+    50(2), 317-372: the cluster-robust sandwich for least squares and nonlinear least squares, the CR1 factor
+    G/(G-1) (N-1)/(N-K), and, with few clusters, Wald intervals from T(G-1) (pages and sections from memory).
 Rousseeuw, P. J. & Croux, C. (1993). Alternatives to the median absolute deviation. J. Am. Stat. Assoc. 88(424),
     1273-1283 (the scaled MAD as a robust sigma; citation from memory; the factor is computed, see step 3).
 """
@@ -72,7 +96,7 @@ from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 from scipy.optimize import least_squares
-from scipy.special import ndtri
+from scipy.special import ndtri, stdtrit
 
 from ..engine.elements import Elements, tunnel_elements
 from ..engine.field import movements_at_points
@@ -104,6 +128,11 @@ SEEN_SHARE = 0.25
 MIN_READINGS_SEEN = 3
 #: Rebuilds of the element cuts at the solution, at most.
 MAX_ROUNDS = 4
+#: Two-sided level of the interval of each fitted value (the `*_ci95` fields). [-]
+CI_LEVEL = 0.95
+#: Below this many monitoring points a warning says the cluster-robust standard errors are themselves uncertain
+#: (our choice; Cameron & Miller 2015 give no sharp number of clusters that is enough, from memory). [-]
+FEW_POINTS = 10
 #: Trigger status of a reading against the user's trigger levels (|settlement| compared, heave included).
 STATUS_CLEAR, STATUS_AMBER, STATUS_RED = "clear", "amber reached", "red reached"
 
@@ -114,12 +143,17 @@ class FitResult:
 
     volume_loss_pct: float  # [%]
     trough_width_k: float  # [-]
-    volume_loss_pct_se: float  # standard error [%]; NaN when not defined
-    trough_width_k_se: float  # standard error [-]; NaN when not defined
+    volume_loss_pct_se: float  # standard error, cluster-robust by monitoring point [%]; NaN when not defined
+    trough_width_k_se: float  # standard error, cluster-robust by monitoring point [-]; NaN when not defined
     readings_used: int  # readings in the final fit (outliers and points below the crown left out)
     rms_mm: float  # root mean square of the residuals of the readings used [mm]
     outliers: list = field(default_factory=list)  # dicts: point_id, date, line, reading_mm, fitted_mm,
     #                                               residual_mm, standardised_residual
+    volume_loss_pct_ci95: list = field(default_factory=lambda: [math.nan, math.nan])  # 95 % interval [low, high] [%]
+    trough_width_k_ci95: list = field(default_factory=lambda: [math.nan, math.nan])  # 95 % interval [low, high] [-]
+    points_used: int = 0  # monitoring points among the readings used: the clusters G of the standard errors
+    volume_loss_pct_se_independent: float = math.nan  # standard error were the readings independent [%]; comparison
+    trough_width_k_se_independent: float = math.nan  # standard error were the readings independent [-]; comparison
 
 
 @dataclass
@@ -444,23 +478,131 @@ def _settlement_at_fit(project: Project, ground: GroundModel, readings: Readings
     return predicted_settlement_mm(at_fit, readings.subset(idx), ground)
 
 
-def _standard_errors(drive: Drive, residual: np.ndarray, inlier: np.ndarray, jac: np.ndarray, n_used: int,
-                     n_par: int, warnings: list) -> np.ndarray:
-    """Standard errors of the fitted values from the Jacobian and the residuals [mm] of the readings used; NaN,
-    with a warning, where the readings cannot give them."""
-    se = np.full(n_par, math.nan)
-    if n_used > n_par:
-        s2 = float(np.sum(residual[inlier] ** 2)) / (n_used - n_par)
-        jtj = jac.T @ jac
-        if np.linalg.cond(jtj) < 1e12:
-            se = np.sqrt(np.diag(np.linalg.inv(jtj)) * s2)
-        else:
-            warnings.append(f"drive {json.dumps(drive.name)}: the readings cannot tell volume loss and K apart "
-                            "(their Jacobian is singular); no standard errors")
+def independent_covariance(jacobian, residual) -> np.ndarray:
+    """Covariance of least-squares parameters were the residuals independent with one variance:
+    (J^T J)^-1 s^2 with s^2 = sum r^2 / (n - p).
+
+    Parameters
+    ----------
+    jacobian : array_like (n, p)  d(model)/d(parameters) at the solution, one row per reading. [mm / unit]
+    residual : array_like (n,)    Reading minus model at the solution. [mm]
+
+    Returns
+    -------
+    ndarray (p, p)  Covariance of the parameters. [unit^2]
+
+    References
+    ----------
+    Cameron & Miller (2015), J. Human Resources 50(2): the default (non-robust) variance their cluster-robust one is
+    set against (section II, from memory).
+    """
+    jac, r = np.asarray(jacobian, dtype=float), np.asarray(residual, dtype=float)
+    n, p = jac.shape
+    return np.linalg.inv(jac.T @ jac) * float(r @ r) / (n - p)
+
+
+def cluster_robust_covariance(jacobian, residual, cluster, kind: str = "CR2") -> np.ndarray:
+    """Cluster-robust covariance of least-squares parameters: readings of one cluster (monitoring point) may be
+    correlated in any way, clusters are independent of each other.
+
+    V = B M B with B = (J^T J)^-1 and M = sum_g (J_g^T u_g)(J_g^T u_g)^T over the G clusters, J_g and r_g the rows
+    of the Jacobian and the residuals of cluster g, and
+      CR1: u_g = r_g, and V multiplied by c = G/(G-1) (n-1)/(n-p);
+      CR2: u_g = (I - H_gg)^(-1/2) r_g with H_gg = J_g B J_g^T (the symmetric square root of the generalised inverse),
+           which removes the bias of M when the errors are independent with one variance; smaller bias than CR1 with
+           few or unequal clusters.
+    For a nonlinear fit J is the Jacobian at the solution, in place of the regressors of a linear one.
+
+    Parameters
+    ----------
+    jacobian : array_like (n, p)  d(model)/d(parameters) at the solution, one row per reading. [mm / unit]
+    residual : array_like (n,)    Reading minus model at the solution. [mm]
+    cluster : array_like (n,)     The cluster of each reading (any labels: point ids). At least 2 clusters.
+    kind : str                    "CR2" (default) or "CR1".
+
+    Returns
+    -------
+    ndarray (p, p)  Covariance of the parameters. [unit^2]
+
+    References
+    ----------
+    Cameron, A. C. & Miller, D. L. (2015). A practitioner's guide to cluster-robust inference. J. Human Resources
+    50(2): the cluster-robust variance of least squares and of nonlinear least squares, the CR1 factor c, and CR2
+    among the bias corrections for few clusters (sections II, VI and VII, from memory).
+    Bell, R. M. & McCaffrey, D. F. (2002). Bias reduction in standard errors for linear regression with multi-stage
+    samples. Survey Methodology 28(2), 169-181 (CR2; citation from memory).
+    """
+    if kind not in ("CR1", "CR2"):
+        raise ValueError(f"kind must be 'CR1' or 'CR2'; got {kind!r}")
+    jac, r = np.asarray(jacobian, dtype=float), np.asarray(residual, dtype=float)
+    n, p = jac.shape
+    _, g = np.unique(np.asarray(cluster), return_inverse=True)
+    g = g.ravel()
+    n_clusters = int(g.max()) + 1 if n else 0
+    if n_clusters < 2:
+        raise ValueError(f"cluster-robust covariance needs at least 2 clusters; got {n_clusters}")
+    bread = np.linalg.inv(jac.T @ jac)
+    u = r.copy()
+    if kind == "CR2":
+        for rows in np.split(np.argsort(g, kind="stable"), np.cumsum(np.bincount(g))[:-1]):
+            jg = jac[rows]
+            w, v = np.linalg.eigh(np.eye(len(rows)) - jg @ bread @ jg.T)
+            root = np.where(w > 1e-10, 1.0 / np.sqrt(np.clip(w, 1e-10, None)), 0.0)
+            u[rows] = v @ (root * (v.T @ r[rows]))
+    scores = np.zeros((n_clusters, p))
+    np.add.at(scores, g, jac * u[:, None])
+    c = n_clusters / (n_clusters - 1) * (n - 1) / (n - p) if kind == "CR1" else 1.0
+    return c * bread @ (scores.T @ scores) @ bread
+
+
+def t_interval(value, standard_error, dof, level: float = CI_LEVEL) -> np.ndarray:
+    """Two-sided interval value -/+ t((1 + level)/2, dof) x standard error, Student's t.
+
+    Parameters
+    ----------
+    value, standard_error : array_like  Estimates and their standard errors. [unit]
+    dof : float                         Degrees of freedom: G - 1 for a cluster-robust standard error of G clusters.
+    level : float                       Coverage of the interval, 0 < level < 1. [-]
+
+    Returns
+    -------
+    ndarray (..., 2)  [low, high]. [unit]
+
+    References
+    ----------
+    Cameron & Miller (2015), J. Human Resources 50(2): with few clusters, Wald intervals with critical values of
+    T(G-1) rather than the normal (section VI, from memory).
+    """
+    half = stdtrit(float(dof), 0.5 * (1.0 + level)) * np.asarray(standard_error, dtype=float)
+    value = np.asarray(value, dtype=float)
+    return np.stack([value - half, value + half], axis=-1)
+
+
+def _standard_errors(drive: Drive, residual: np.ndarray, jac: np.ndarray, point_id: np.ndarray, n_par: int,
+                     warnings: list):
+    """Standard errors of the fitted values from the Jacobian and the residuals [mm] of the readings used, clustered
+    by `point_id`, and were the readings independent: (cluster-robust, independent, number of points). NaN, with a
+    warning, where the readings cannot give them."""
+    robust, independent = np.full(n_par, math.nan), np.full(n_par, math.nan)
+    n_used, n_points = len(residual), len(set(point_id))
+    name = json.dumps(drive.name)
+    if n_used <= n_par:
+        warnings.append(f"drive {name}: {n_used} reading(s) for {n_par} values; no standard errors")
+    elif np.linalg.cond(jac.T @ jac) >= 1e12:
+        warnings.append(f"drive {name}: the readings cannot tell volume loss and K apart (their Jacobian is "
+                        "singular); no standard errors")
     else:
-        warnings.append(f"drive {json.dumps(drive.name)}: {n_used} reading(s) for {n_par} values; no standard "
-                        "errors")
-    return se
+        independent = np.sqrt(np.diag(independent_covariance(jac, residual)))
+        if n_points >= 2:
+            robust = np.sqrt(np.diag(cluster_robust_covariance(jac, residual, point_id)))
+        if n_points < FEW_POINTS:
+            warnings.append(f"drive {name}: the readings used come from {n_points} monitoring point(s), fewer than "
+                            f"{FEW_POINTS}: " + ("no standard errors (they need readings of 2 points at least)"
+                                                 if n_points < 2 else
+                                                 f"the standard errors, clustered by point, are themselves uncertain; "
+                                                 f"the {CI_LEVEL:.0%} intervals use Student's t with "
+                                                 f"{n_points - 1} degree(s) of freedom"))
+    return robust, independent, n_points
 
 
 def _outlier_records(readings: Readings, idx: np.ndarray, observed: np.ndarray, exact: np.ndarray,
@@ -473,10 +615,12 @@ def _outlier_records(readings: Readings, idx: np.ndarray, observed: np.ndarray, 
     } for r in np.flatnonzero(out)]
 
 
-def _part_fits(model: _DriveModel, p: np.ndarray, se: np.ndarray, n_used: int, rms: float, outliers: list,
+def _part_fits(model: _DriveModel, p: np.ndarray, se: tuple, n_used: int, rms: float, outliers: list,
                warnings: list) -> dict:
     """The FitResult of each part fitted, keyed (drive name, part key); warns of a value at a bound of its range."""
     drive, keys, m = model.drive, model.keys, len(model.parts)
+    robust, independent, n_points = se
+    ci = t_interval(p, robust, max(n_points - 1, 1))
     fits = {}
     for j, q in enumerate(model.parts):
         for value, (lo, hi), name in ((p[j], VOLUME_LOSS_BOUNDS_PCT, "volume_loss_pct"),
@@ -485,8 +629,11 @@ def _part_fits(model: _DriveModel, p: np.ndarray, se: np.ndarray, n_used: int, r
                 warnings.append(f"{_describe(drive, keys[q])}: fitted {name} = {value:g} is at the bound of "
                                 f"its range ({lo:g} to {hi:g}); the readings do not hold it")
         fits[(drive.name, keys[q])] = FitResult(
-            volume_loss_pct=float(p[j]), trough_width_k=float(p[m + j]), volume_loss_pct_se=float(se[j]),
-            trough_width_k_se=float(se[m + j]), readings_used=n_used, rms_mm=rms, outliers=outliers)
+            volume_loss_pct=float(p[j]), trough_width_k=float(p[m + j]), volume_loss_pct_se=float(robust[j]),
+            trough_width_k_se=float(robust[m + j]), readings_used=n_used, rms_mm=rms, outliers=outliers,
+            volume_loss_pct_ci95=[float(v) for v in ci[j]], trough_width_k_ci95=[float(v) for v in ci[m + j]],
+            points_used=n_points, volume_loss_pct_se_independent=float(independent[j]),
+            trough_width_k_se_independent=float(independent[m + j]))
     return fits
 
 
@@ -518,8 +665,10 @@ def _fit_drive(project: Project, ground: GroundModel, readings: Readings, d: int
     residual = observed - exact
     n_used, n_par = int(inlier.sum()), 2 * m
     rms = float(np.sqrt(np.mean(residual[inlier] ** 2))) if n_used else math.nan
-    se = _standard_errors(drive, residual, inlier, jac, n_used, n_par, warnings)
-    se[at_bound != 0] = math.nan
+    robust, independent, n_points = _standard_errors(drive, residual[inlier], jac,
+                                                     readings.point_id[idx][inlier], n_par, warnings)
+    robust[at_bound != 0] = independent[at_bound != 0] = math.nan
+    se = (robust, independent, n_points)
     outliers = _outlier_records(readings, idx, observed, exact, residual, sigma, out)
     return _part_fits(model, p, se, n_used, rms, outliers, warnings), inlier, out, exact
 
@@ -673,5 +822,7 @@ def fit_report(project: Project, readings: Readings, analysis: BackAnalysis) -> 
         "method": {"robust_loss": "soft_l1", "robust_scale_mm": ROBUST_SCALE_MM,
                    "outlier_limit_sigma": analysis.outlier_limit, "min_face_past_m": analysis.min_face_past_m,
                    "sigma": "1.4826 x median absolute deviation of the robust residuals",
-                   "sigma_floor_mm": SIGMA_FLOOR_MM, "final_fit": "least squares without the outliers"},
+                   "sigma_floor_mm": SIGMA_FLOOR_MM, "final_fit": "least squares without the outliers",
+                   "standard_errors": "cluster-robust (CR2 sandwich), readings clustered by monitoring point",
+                   "interval": f"{CI_LEVEL:.0%} two-sided, Student's t with points_used - 1 degrees of freedom"},
     })
