@@ -14,7 +14,7 @@ from settle.assessment import Assessment
 from settle.errors import InputError
 from settle.assessments.utilities import CROSSES, EXCEEDS, NEAR, NOT_CHECKED, STATUSES, WITHIN, assess_utilities
 from settle.assessments.utility_strains import (axial_strain, bending_strain, extreme_fibre_strains, ground_curvature,
-                                               joint_opening, joint_rotation)
+                                               joint_extreme_fibre_opening, joint_opening, joint_rotation)
 from settle.assessments.utility_tables import CRITICAL_POINT_FIELDS, UTILITY_FIELDS, critical_point_rows, status_counts, utility_rows
 from settle.engine.field import movements_at_points
 from settle.engine.movements import Movements
@@ -132,6 +132,30 @@ def test_joint_opening_of_a_uniform_strain_is_strain_times_pipe_length():
     assert joint_opening(eps * lp / 2, 0.0, -eps * lp / 2, 0.0, -1.0, 0.0) == pytest.approx(eps * lp)
 
 
+def test_joint_opening_at_the_extreme_fibre_closed_form():
+    # Pure rotation: the methods.md 6.1 joint rotation of 5.39e-3 rad (computed there) on the 300 mm main opens the
+    # joint's opening side by theta OD/2 = 0.8085 mm, whichever way the joint turns.
+    np.testing.assert_allclose(joint_extreme_fibre_opening(0.0, [5.39e-3, -5.39e-3], 300.0), 0.8085, rtol=1e-12)
+    # Pure pull-out: the methods.md 6.1 pull-out of 3.44 mm (computed there) is unchanged.
+    assert joint_extreme_fibre_opening(3.44, 0.0, 300.0) == 3.44
+    # Both: the parts add. An axial closing of 1 mm leaves the opening side closed by 1 - 0.8085 mm; a closing of
+    # 0.5 mm leaves it open by 0.3085 mm.
+    np.testing.assert_allclose(joint_extreme_fibre_opening([3.44, -1.0, -0.5], 5.39e-3, 300.0),
+                               [4.2485, -0.1915, 0.3085], rtol=1e-12)
+
+
+@settings(max_examples=60, deadline=None)
+@given(axial=st.floats(-20.0, 20.0), theta=st.floats(-0.1, 0.1), od=st.floats(10.0, 5000.0),
+       scale=st.floats(0.01, 100.0))
+def test_joint_opening_at_the_extreme_fibre_properties(axial, theta, od, scale):
+    total = joint_extreme_fibre_opening(axial, theta, od)
+    assert total >= axial  # never below the axial part (so never below a positive axial opening)
+    assert joint_extreme_fibre_opening(axial, -theta, od) == total  # either way the joint turns
+    # The rotation's share grows linearly with the diameter.
+    assert joint_extreme_fibre_opening(axial, theta, scale * od) - axial == pytest.approx(scale * (total - axial),
+                                                                                           rel=1e-9, abs=1e-12)
+
+
 # ------------------------------------------------------------------------------------------------ the procedure
 def test_main_across_the_tunnel_matches_methods_6_1():
     # methods.md 6.1 check values (computed there) for the cast-iron main at 1 m depth crossing the tunnel.
@@ -207,13 +231,19 @@ def test_joint_rotation_is_the_change_of_slope_over_one_pipe_length():
     behind = REFERENCE(np.full(y.size, 100.0), y - lp / 2, np.ones(y.size))
     ahead = REFERENCE(np.full(y.size, 100.0), y + lp / 2, np.ones(y.size))
     np.testing.assert_allclose(p.joint_rotation_deg[inside], np.degrees(-(ahead.slope_y - behind.slope_y)), atol=1e-12)
-    np.testing.assert_allclose(p.joint_opening_mm[inside], ahead.uy_mm - behind.uy_mm, atol=1e-12)
+    np.testing.assert_allclose(p.joint_axial_opening_mm[inside], ahead.uy_mm - behind.uy_mm, atol=1e-12)
+    # At the extreme fibre the rotation adds |theta| OD/2 (OD 300 mm) to the axial part.
+    np.testing.assert_allclose(p.joint_rotation_opening_mm[inside],
+                               np.radians(np.abs(p.joint_rotation_deg[inside])) * 150.0, rtol=1e-12)
+    np.testing.assert_allclose(p.joint_opening_mm[inside],
+                               p.joint_axial_opening_mm[inside] + p.joint_rotation_opening_mm[inside], rtol=1e-12)
     # Bounded by the forms of methods.md 6.1 (max|kappa| Lp, max(eps) Lp), which give 0.309 deg and 3.44 mm here.
     kappa_lp = np.degrees(np.abs(p.curvature_per_m).max() * lp)
     eps_lp = r.max_axial_strain_ue[0] * 1e-6 * lp * 1e3
     assert kappa_lp == pytest.approx(0.309, abs=5e-4) and eps_lp == pytest.approx(3.44, abs=5e-3)
     assert 0.5 * kappa_lp < r.max_joint_rotation_deg[0] <= kappa_lp
-    assert 0.5 * eps_lp < r.max_joint_opening_mm[0] <= eps_lp
+    assert 0.5 * eps_lp < np.nanmax(p.joint_axial_opening_mm) <= eps_lp
+    assert np.nanmax(p.joint_axial_opening_mm) < r.max_joint_opening_mm[0] <= eps_lp + np.radians(kappa_lp) * 150.0
     assert r.status[0] == EXCEEDS and "joint opening" in r.not_checked[0]  # cast iron: no opening limit (6.2)
 
 
@@ -224,7 +254,8 @@ def test_short_pipes_tend_to_kappa_and_strain_times_length():
     r = assess_utilities(pipes([[[100, -20], [100, 20]]], segment=lp), REFERENCE)
     kappa = np.abs(r.profiles.curvature_per_m).max()
     assert r.max_joint_rotation_deg[0] == pytest.approx(np.degrees(kappa * lp), rel=1e-3)
-    assert r.max_joint_opening_mm[0] == pytest.approx(r.max_axial_strain_ue[0] * 1e-6 * lp * 1e3, rel=2e-3)
+    assert np.nanmax(r.profiles.joint_axial_opening_mm) == pytest.approx(r.max_axial_strain_ue[0] * 1e-6 * lp * 1e3,
+                                                                        rel=2e-3)
 
 
 def test_pipe_below_the_crown_crosses_the_tunnel_and_gets_no_numbers():
@@ -290,6 +321,32 @@ def test_uniform_ground_strain_opens_every_joint_by_strain_times_length():
     np.testing.assert_allclose(p.joint_opening_mm[mid], e * 2500.0, rtol=1e-12)
     assert r.max_axial_strain_ue[0] == pytest.approx(400.0) and r.max_axial_strain_ue[1] == pytest.approx(0.0)
     assert r.max_joint_opening_mm[1] == 0.0
+
+
+@pytest.mark.parametrize("strain, largest_mm", [(1e-4, 0.3), (-2.5e-5, 0.05), (-1e-4, -0.05)])
+def test_uniform_curvature_and_strain_open_the_extreme_fibre_by_the_sum(strain, largest_mm):
+    # S = -(c/2) x^2 and u_x = e x along a pipe along x (OD 500 mm, Lp = 2 m): inside, every joint turns by c Lp =
+    # 4e-4 rad and opens e Lp at the axis, so the extreme fibre opens by e Lp + c Lp OD/2 (0.1 mm from the rotation).
+    # At the ends the pipe either side is clipped to the line, Lp/2 = 1 m long: half of each part.
+    c, lp = 2e-4, 2.0
+    field = synthetic(lambda x, y: -0.5 * c * x**2, lambda x, y: (-c * x, np.zeros_like(x)), lambda x, y: strain * x,
+                      lambda x, y: (np.full_like(x, strain), 0 * x, 0 * x))
+    u = pipes([[[0, 0], [20, 0]]], material="pe", segment=lp, od=500.0,
+              overrides={"allowable_joint_opening_mm": [0.25]})
+    r = assess_utilities(u, field)
+    p = r.profiles
+    mid = (p.chainage_m > lp / 2) & (p.chainage_m < 20 - lp / 2)
+    np.testing.assert_allclose(p.joint_axial_opening_mm[mid], strain * lp * 1e3, rtol=1e-9)
+    np.testing.assert_allclose(p.joint_rotation_opening_mm[mid], 0.1, rtol=1e-9)
+    np.testing.assert_allclose(p.joint_opening_mm[mid], strain * lp * 1e3 + 0.1, rtol=1e-9)
+    assert np.nanmax(p.joint_opening_mm) == pytest.approx(largest_mm, rel=1e-9)
+    # The two parts are those where the total is largest, and the check uses the total (opening positive only).
+    assert r.max_joint_axial_opening_mm[0] + r.max_joint_rotation_opening_mm[0] == pytest.approx(largest_mm, rel=1e-9)
+    assert r.max_joint_opening_mm[0] == pytest.approx(max(largest_mm, 0.0), abs=1e-12)
+    assert r.check_utilisation["joint_opening"][0] == pytest.approx(max(largest_mm, 0.0) / 0.25, abs=1e-12)
+    # A pull-out of 0.2 mm alone is within 0.25 mm; with the rotation's 0.1 mm the joint exceeds it.
+    if strain > 0:
+        assert r.status[0] == EXCEEDS and r.governing_check[0] == "joint opening"
 
 
 @pytest.mark.parametrize("allowable, status", [(120.0, WITHIN), (60.0, NEAR), (50.0, EXCEEDS)])
@@ -372,6 +429,18 @@ def test_rows_for_the_layers_the_table_and_the_summary():
     assert sum(p["governs"] for p in points) == 2  # one per checked pipe
     assert {p["check"] for p in points if p["id"] == "W1"} == {"bending strain", "axial strain", "fibre strain",
                                                                 "joint rotation", "joint opening"}
+    # The joint opening: at the extreme fibre, with its axial and rotation parts where it is largest.
+    assert UTILITY_FIELDS.index("max_joint_axial_opening_mm") > UTILITY_FIELDS.index("not_checked")
+    w1 = rows[0]
+    assert w1["max_joint_rotation_opening_mm"] > 0
+    assert w1["max_joint_opening_mm"] == pytest.approx(w1["max_joint_axial_opening_mm"]
+                                                       + w1["max_joint_rotation_opening_mm"], rel=1e-12)
+    assert np.isnan(rows[1]["max_joint_axial_opening_mm"]) and np.isnan(rows[1]["max_joint_rotation_opening_mm"])
+    opening = [p for p in points if p["id"] == "W1" and p["check"] == "joint opening"][0]
+    assert opening["joint_opening_mm"] == pytest.approx(w1["max_joint_opening_mm"], rel=1e-12)
+    assert opening["joint_axial_opening_mm"] == pytest.approx(w1["max_joint_axial_opening_mm"], rel=1e-12)
+    assert opening["joint_rotation_opening_mm"] == pytest.approx(
+        np.radians(abs(opening["joint_rotation_deg"])) * 150.0, rel=1e-12)
     gov = [p for p in points if p["id"] == "W1" and p["governs"]][0]
     assert gov["check"] == rows[0]["governing_check"] and gov["chainage_m"] == rows[0]["governing_chainage_m"]
     counts = status_counts(r)

@@ -6,7 +6,8 @@ Conventions (stated once; the project's, see `settle.results`):
   chainage;
 - ground curvature along the pipe is sagging positive: kappa = -d2S/ds2 (the middle of a settlement trough sags,
   kappa > 0) [1/m]; joint rotation is sagging positive too [rad, reported in deg];
-- joint opening is positive when a joint opens (pull-out), negative when it closes [mm].
+- joint opening is positive when a joint opens (pull-out), negative when it closes [mm]; the joint opening checked is
+  the one at the extreme fibre on the joint's opening side, the axial opening plus the rotation's share |theta| OD/2.
 
 Assumptions (they belong in the README):
 - The pipe follows the ground: its movements are the greenfield movements at the depth of its axis (the subsurface
@@ -24,6 +25,12 @@ Assumptions (they belong in the README):
   slope between them and opens by the change of ground displacement between them, both taken along the tangent at
   the joint. Where the curvature (strain) is uniform over Lp these are kappa Lp and eps Lp, the forms of methods.md
   6.1; elsewhere they never exceed max|kappa| Lp and max(eps) Lp.
+- Joint opening at the extreme fibre: the change of ground displacement is the opening at the pipe axis (the axial
+  part). A rotation theta turns the pipe ends about their axis, which opens one side of the joint by |theta| OD/2
+  whichever way it turns (the invert when sagging, the crown when hogging) and closes the other by as much. The joint
+  opening reported and checked against `allowable_joint_opening_mm` is the opening side's: axial part + |theta| OD/2
+  (`utility_strains.joint_extreme_fibre_opening`). Where the axial part is a closing (negative) the opening side
+  still opens by |theta| OD/2 less that closing, which may be negative (the whole joint closes). Both parts are kept.
 - Strain limits: the bending strain is checked on its own; the axial strain in tension, and also in shortening for
   materials whose limit holds both ways (`MaterialLimits.checks_compression`); the extreme fibre by the linear
   interaction axial/allowable_axial + bending/allowable_bending, which is the extreme-fibre strain over the limit when
@@ -60,7 +67,8 @@ from ..engine.movements import Movements
 from ..inputs.tables import shown
 from ..inputs.utility_lines import Utilities
 from ..inputs.utility_settings import UtilityOptions
-from .utility_strains import axial_strain, bending_strain, ground_curvature, joint_opening, joint_rotation
+from .utility_strains import (axial_strain, bending_strain, ground_curvature, joint_extreme_fibre_opening,
+                              joint_opening, joint_rotation)
 
 #: The checks, as (field prefix, words used in `governing_check` and messages).
 CHECKS = (("bending", "bending strain"), ("axial", "axial strain"), ("fibre", "fibre strain"),
@@ -95,7 +103,9 @@ class UtilityProfiles:
     bending_strain_ue: np.ndarray  # extreme fibre, magnitude, after any bending_reduction_factor
     axial_strain_ue: np.ndarray  # tensile positive
     joint_rotation_deg: np.ndarray  # sagging positive
-    joint_opening_mm: np.ndarray  # opening positive
+    joint_opening_mm: np.ndarray  # at the extreme fibre on the opening side: axial + rotation parts; opening positive
+    joint_axial_opening_mm: np.ndarray  # at the pipe axis, the change of ground displacement; opening positive
+    joint_rotation_opening_mm: np.ndarray  # |theta| OD / 2, the rotation's share (never negative)
     undefined: np.ndarray  # bool: a movement needed here came back NaN (at or below a tunnel crown)
 
     def __len__(self) -> int:
@@ -120,7 +130,9 @@ class UtilityResults:
     max_fibre_strain_ue: np.ndarray  # most tensile extreme-fibre strain, axial + bending
     min_fibre_strain_ue: np.ndarray  # most compressive extreme-fibre strain, axial - bending
     max_joint_rotation_deg: np.ndarray  # largest |rotation|
-    max_joint_opening_mm: np.ndarray  # largest opening, 0 when every joint closes
+    max_joint_opening_mm: np.ndarray  # largest extreme-fibre opening, 0 when every joint closes
+    max_joint_axial_opening_mm: np.ndarray  # the axial part where the extreme-fibre opening is largest
+    max_joint_rotation_opening_mm: np.ndarray  # the rotation part there; the two add to the largest total (even <= 0)
     check_utilisation: dict[str, np.ndarray]
     check_place: dict[str, np.ndarray]
     utilisation: np.ndarray  # largest of the check utilisations [-]
@@ -201,16 +213,20 @@ def _evaluate(lines: _Lines, utilities: Utilities, pipe, s, movements, options: 
     od_m = utilities.outer_diameter_mm[pipe] / 1e3
     bending = np.abs(bending_strain(curvature, od_m)) * utilities.bending_reduction_factor[pipe] * 1e6
     axial = axial_strain(m.strain_xx_ue[here], m.strain_yy_ue[here], m.strain_xy_ue[here], tx, ty)
-    rotation = np.full(n, np.nan)
-    rotation[j] = np.degrees(joint_rotation(m.slope_x[jb], m.slope_y[jb], m.slope_x[ja], m.slope_y[ja], tx[j], ty[j]))
-    opening = np.full(n, np.nan)
-    opening[j] = joint_opening(m.ux_mm[jb], m.uy_mm[jb], m.ux_mm[ja], m.uy_mm[ja], tx[j], ty[j])
+    rotation, opening, axial_opening, rotation_opening = (np.full(n, np.nan) for _ in range(4))
+    theta = joint_rotation(m.slope_x[jb], m.slope_y[jb], m.slope_x[ja], m.slope_y[ja], tx[j], ty[j])
+    rotation[j] = np.degrees(theta)
+    axial_opening[j] = joint_opening(m.ux_mm[jb], m.uy_mm[jb], m.ux_mm[ja], m.uy_mm[ja], tx[j], ty[j])
+    od_mm = utilities.outer_diameter_mm[pipe[j]]
+    opening[j] = joint_extreme_fibre_opening(axial_opening[j], theta, od_mm)
+    rotation_opening[j] = joint_extreme_fibre_opening(0.0, theta, od_mm)
     undefined = np.isnan(settle_m[here]) | np.isnan(settle_m[ahead]) | np.isnan(settle_m[behind])
     undefined[j] |= np.isnan(settle_m[jb]) | np.isnan(settle_m[ja])
     return dict(pipe=pipe, chainage_m=s, x_m=x, y_m=y, depth_m=depth, settlement_mm=m.settlement_mm[here],
                 ground_slope=np.hypot(m.slope_x[here], m.slope_y[here]), curvature_per_m=curvature,
                 bending_strain_ue=bending, axial_strain_ue=axial, joint_rotation_deg=rotation,
-                joint_opening_mm=opening, undefined=undefined)
+                joint_opening_mm=opening, joint_axial_opening_mm=axial_opening,
+                joint_rotation_opening_mm=rotation_opening, undefined=undefined)
 
 
 def _peaks_to_refine(values: dict, pipe: np.ndarray) -> np.ndarray:
@@ -406,7 +422,8 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
     not_checked = tuple(", ".join(w for c, w in CHECKS if applies[c][p] and no_limit[c][p]) for p in range(n))
 
     group = lambda v: _group_argmax(v, pipe, n)[0]  # noqa: E731
-    max_opening = group(opening)
+    max_opening, at_max_opening = _group_argmax(opening, pipe, n)
+    at_opening = lambda v: np.where(at_max_opening >= 0, v[np.maximum(at_max_opening, 0)] + 0.0, np.nan)  # noqa: E731
     undefined_s = np.where(prof.undefined, prof.chainage_m, np.nan)
     crossing_range = np.column_stack([-group(-undefined_s), group(undefined_s)])
     warnings = _crossing_warnings(u, crossing, crossing_range) + _no_limit_warnings(u, crossing, applies, no_limit)
@@ -422,6 +439,8 @@ def _verdict(u: Utilities, prof: UtilityProfiles, options: UtilityOptions) -> Ut
         min_fibre_strain_ue=-group(bending - axial),
         max_joint_rotation_deg=group(rotation),
         max_joint_opening_mm=np.where(np.isnan(max_opening), np.nan, np.maximum(max_opening, 0.0)),
+        max_joint_axial_opening_mm=at_opening(prof.joint_axial_opening_mm),
+        max_joint_rotation_opening_mm=at_opening(prof.joint_rotation_opening_mm),
         check_utilisation=check_utilisation,
         check_place=check_place,
         utilisation=utilisation,

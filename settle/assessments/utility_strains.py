@@ -1,7 +1,8 @@
 """Buried pipes: the published methods of pipe strain and joint movement, one plain vectorised function each.
 
 Ground curvature along a pipe and its bending strain, axial strain along the pipe axis, extreme-fibre strains, joint
-rotation and joint opening (Attewell, Yeates & Selby 1986; Bracegirdle et al. 1996). Conventions and references:
+rotation, joint opening at the pipe axis and at the extreme fibre (Attewell, Yeates & Selby 1986; Bracegirdle et al.
+1996). Conventions and references:
 `settle.assessments.utilities`, the procedure that applies them along every pipe.
 """
 from __future__ import annotations
@@ -136,3 +137,37 @@ def joint_opening(ux_behind, uy_behind, ux_ahead, uy_ahead, tangent_x, tangent_y
     dx = np.asarray(ux_ahead) - np.asarray(ux_behind)
     dy = np.asarray(uy_ahead) - np.asarray(uy_behind)
     return dx * np.asarray(tangent_x) + dy * np.asarray(tangent_y)
+
+
+def joint_extreme_fibre_opening(axial_opening, rotation, outer_diameter):
+    """Opening of a joint at the extreme fibre on its opening side: delta_f = delta_a + |theta| OD/2.
+
+    The pipe ends either side of a joint move apart by delta_a along the pipe axis and turn by theta relative to each
+    other about a line through the axis, across the plane of bending. Turning moves the fibres on the two sides of
+    the joint apart and together by theta OD/2 each (small angles): one side opens whichever way the joint turns,
+    the invert for a sagging rotation, the crown for a hogging one. So the opening side opens by the axial opening
+    plus |theta| OD/2; the other side opens by delta_a - |theta| OD/2.
+
+    Parameters
+    ----------
+    axial_opening : array_like   delta_a, the joint opening at the pipe axis (`joint_opening`), positive when the joint
+                                 opens, negative when it closes. [any length unit]
+    rotation : array_like        theta, the joint rotation (`joint_rotation`), either sign. [rad]
+    outer_diameter : array_like  OD, the outer diameter of the pipe. [the unit of axial_opening]
+
+    Returns
+    -------
+    ndarray  delta_f = delta_a + |theta| OD / 2, positive when the joint opens, in the unit of axial_opening. It is
+             never less than delta_a and grows linearly with OD. When the axial part is a closing (delta_a < 0) the
+             opening side still opens by |theta| OD/2 + delta_a, which is smaller than |theta| OD/2 and negative (the
+             whole joint closes) when the closing exceeds it. With theta = 0 it is delta_a; with delta_a = 0 it is
+             |theta| OD / 2.
+
+    References
+    ----------
+    [AYS86] (from memory): a jointed pipe that follows the ground, its joints checked for rotation and pull-out;
+    [BMNT96] step (b); methods.md 6.1 (joint rotation ~ kappa Lp, pull-out ~ eps_h,tensile Lp, the two parts here).
+    Their sum at the extreme fibre is the geometry of two rigid pipe ends turned about their axis (small angles).
+    """
+    return (np.asarray(axial_opening, dtype=float)
+            + 0.5 * np.abs(np.asarray(rotation, dtype=float)) * np.asarray(outer_diameter, dtype=float))
