@@ -25,11 +25,14 @@ Layers and fields (the names are part of the output format; GIS projects refer t
 - `utility_critical_points`  Point per pipe and check where its demand is greatest (CRITICAL_POINT_FIELDS).
 - `face_stations`     Point per face-check station (settle.face_stations): drive, chainage_m, cover_m,
                       water_pressure_kpa, support_min_kpa, blowout_kpa, support_max_kpa, window_kpa, status, and more.
-                      `status_class`: 0 open, 1 narrow, 2 closed. With it the `route` layer gains face_min_window_kpa, face_min_window_chainage_m,
-                      face_closed_stations, face_narrow_stations, face_low_cover_stations.
+                      `status_class`: 0 open, 1 narrow, 2 closed. With it the `route` layer gains
+                      face_min_window_kpa, face_min_window_chainage_m, face_closed_stations, face_narrow_stations,
+                      face_low_cover_stations.
 
-Values are float64 as computed; nothing is rounded. Each frame declares its layer geometry type in
-`frame.attrs["geometry_type"]`, which `write_geopackage` uses so that a layer with no rows keeps its type.
+Values are float64 as computed; nothing is rounded but the minimum cover (`min_cover_m` of `route` and
+`route_reaches`), given to 0.01 m as every output shows it (`settle.inputs.route.rounded_cover_m`). Each frame
+declares its layer geometry type in `frame.attrs["geometry_type"]`, which `write_geopackage` uses so that a layer
+with no rows keeps its type.
 """
 from __future__ import annotations
 
@@ -39,6 +42,7 @@ import pandas as pd
 import shapely
 
 from settle.errors import where
+from settle.inputs.route import rounded_cover_m
 from settle.procedure.results import DriveResult, Movements, Result
 
 from .contours import settlement_bands, settlement_lines
@@ -86,8 +90,9 @@ def route_frame(drives: list[DriveResult], crs: str) -> gpd.GeoDataFrame:
     Returns
     -------
     GeoDataFrame  Fields of ROUTE_FIELDS. Chainages, lengths, cover and depth in [m], lost volume in [m3].
-                  length_m is end minus start chainage (chainage runs along the 3-D axis); min_cover_m and
-                  min_axis_depth_m are the least values at the axis vertices over the whole drive;
+                  length_m is end minus start chainage (chainage runs along the 3-D axis); min_cover_m is the
+                  drive's minimum cover (`DriveResult.min_cover_m`: route profile, river beds in river reaches) to
+                  0.01 m, the value every output shows; min_axis_depth_m the least at the axis vertices;
                   face_chainage_m is NaN (NULL in files) when the drive is complete.
     """
     geoms, cols = [], {k: [] for k in ROUTE_FIELDS}
@@ -103,7 +108,7 @@ def route_frame(drives: list[DriveResult], crs: str) -> gpd.GeoDataFrame:
         cols["outer_diameter_m"].append(d.outer_diameter_m)
         cols["face_chainage_m"].append(np.nan if d.face_chainage_m is None else d.face_chainage_m)
         cols["excavated_to_m"].append(d.excavated_to_m)
-        cols["min_cover_m"].append(np.min(d.cover_m))
+        cols["min_cover_m"].append(rounded_cover_m(d.min_cover_m))
         cols["min_axis_depth_m"].append(np.min(d.axis_depth_m))
         cols["lost_volume_m3"].append(d.lost_volume_m3)
     columns = {"drive": pd.Series(cols["drive"], dtype=str)}
@@ -246,7 +251,6 @@ def reaches_frame(result: Result) -> gpd.GeoDataFrame:
             inside = (geometry.chainage_m > a) & (geometry.chainage_m < b)
             chain = np.concatenate([[a], geometry.chainage_m[inside], [b]])
             geoms.append(shapely.linestrings(position_at(geometry.axis_xyz_m, geometry.chainage_m, chain)))
-            profile = (geometry.profile_chainage_m >= a) & (geometry.profile_chainage_m <= b)
             river = [r.name or "river" for r in project.rivers
                      if r.drive == drive.name and r.from_chainage_m <= mid <= r.to_chainage_m]
             mode = [r.mode for r in drive.face_support if r.from_chainage_m <= mid < r.to_chainage_m]
@@ -262,9 +266,7 @@ def reaches_frame(result: Result) -> gpd.GeoDataFrame:
                                ("excavated", bool(b <= geometry.excavated_to_m + 1e-9)),
                                ("river", river[0] if river else ""),
                                ("support_mode", (mode[0] if mode else default_mode) if result.face else ""),
-                               ("min_cover_m", float(np.min(geometry.profile_ground_m[profile]
-                                                            - geometry.profile_axis_m[profile])
-                                                     - geometry.outer_diameter_m / 2.0) if profile.any() else np.nan),
+                               ("min_cover_m", rounded_cover_m(geometry.least_cover_m(a, b, river=bool(river)))),
                                ("face_min_window_kpa", float(np.min(stations.window_kpa[at])) if some else np.nan),
                                ("face_status", STATUSES[worst] if worst is not None else ""),
                                ("face_low_cover", bool(stations.low_cover[at].any()) if some else False)):
@@ -327,7 +329,8 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     if result.buildings is not None:
         from settle.assessments.building_tables import building_columns, wall_columns
 
-        for name, columns in (("buildings", building_columns(project.buildings, result.buildings)),
+        for name, columns in (("buildings", building_columns(project.buildings, result.buildings,
+                                                             result.building_envelope)),
                               ("building_walls", wall_columns(project.buildings, result.buildings))):
             geometry = columns.pop("geometry")
             layers[name] = _frame(columns, geometry, crs, name)
@@ -338,7 +341,8 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
         from settle.assessments.utilities import STATUSES as PIPE_STATUSES
 
         pipes = project.utilities
-        layers["utilities"] = rows_frame(utility_rows(pipes, result.utilities), UTILITY_FIELDS, crs, "utilities")
+        rows = utility_rows(pipes, result.utilities, envelope=result.utility_envelope)
+        layers["utilities"] = rows_frame(rows, UTILITY_FIELDS, crs, "utilities")
         layers["utilities"]["status_class"] = _status_class(layers["utilities"]["status"], PIPE_STATUSES)
         layers["utility_critical_points"] = rows_frame(critical_point_rows(pipes, result.utilities),
                                                        CRITICAL_POINT_FIELDS, crs, "utility_critical_points")

@@ -530,12 +530,16 @@ METHODS = {
     "face": (
         ("settle.assessments.face_methods", "settle.face"),
         "Face support window. Minimum support at the crown: water pressure plus the wedge-and-silo support "
-        "(Anagnostou & Kovari 1994) with partial factors, and in cohesive ground the Broms & Bennermark (1967) "
-        "stability ratio. Maximum: the blow-out stress (total vertical stress at the crown) and the Delft "
-        "cavity-expansion fracture pressure (Luger & Hergarden 1988), each over its factor. The window is the "
-        "maximum less the minimum less twice the operating tolerance.",
-        "The engine's documentation marks the wedge-silo, Broms & Bennermark, blow-out and Delft formulas, and "
-        "several default factors, as written from memory of the sources; check them against the originals."),
+        "(Anagnostou & Kovari 1994) with partial factors, and in cohesive ground the support that holds the Broms & "
+        "Bennermark (1967) stability ratio at its working level (3 by default; face movements stay small below "
+        "about 2 to 4, Mair 1979, O'Reilly 1988). Where the axis is in clay, the volume loss that support implies "
+        "(load factor against a closed face's collapse ratio, Davis et al. 1980; Macklin 1999) is compared with "
+        "the design volume loss. Maximum: the blow-out stress (total vertical stress at the crown) and the Delft "
+        "cavity-expansion fracture pressure (Luger & Hergarden 1988) at the crown, from the initial stress with "
+        "K0, each over its factor. The window is the maximum less the minimum less twice the operating tolerance.",
+        "The engine's documentation marks the wedge-silo, Broms & Bennermark, blow-out and Delft formulas, the "
+        "working stability ratio, the collapse ratio of a closed face, Macklin's fit, Jaky's K0 and several default "
+        "factors as written from memory of the sources; check them against the originals."),
 }
 
 
@@ -637,6 +641,13 @@ def _building_blocks(run: RunOutputs) -> list[Block]:
     if screened is not None:
         text += f" {screened} cleared at stage 1 (screening) and counted in category 0."
     b.append(Block("text", text))
+    if "worst_category" in layer and layer["worst_category"].notna().any():
+        worst = layer["worst_category"].to_numpy(dtype=float, na_value=np.nan)
+        during = int(layer["worst_drive"].notna().sum()) if "worst_drive" in layer else 0
+        b.append(Block("text", "Worst over the construction sequence (every stage of every drive, and completion): "
+                       + "; ".join(f"cat. {c}: {int(np.sum(worst == c))}" for c, _, _ in ranges)
+                       + f"; {int(np.nansum(worst > cat))} worse than at the stage of this run, {during} governed "
+                       "while a face passes (fields worst_category, worst_drive, worst_face_chainage_m)."))
     rows = buildings_to_report(layer)
     mapping = {"id": "id", "cat": "category", "degree": "category_label",
                "settl mm": "max_settlement_mm", "tilt": lambda r: _one_in(r.get("max_tilt")),
@@ -662,6 +673,10 @@ def _utility_blocks(run: RunOutputs) -> list[Block]:
     counts = layer["status"].value_counts()
     b.append(Block("text", f"{len(layer)} pipes assessed: " +
                    "; ".join(f"{word}: {int(counts.get(word, 0))}" for word in STATUSES) + "."))
+    if "worst_status" in layer and layer["worst_status"].notna().any():
+        worst = layer["worst_status"].value_counts()
+        b.append(Block("text", "Worst over the construction sequence: " +
+                       "; ".join(f"{word}: {int(worst.get(word, 0))}" for word in STATUSES) + "."))
     crossing = layer[layer["status"] == "crosses the tunnel"]
     if len(crossing):
         b.append(Block("text", "Crossing the tunnel (no numbers; to be resolved with the asset owner): "

@@ -150,12 +150,13 @@ def _write_tables(result: Result, out: Path) -> dict:
     if result.buildings is not None:
         from settle.assessments.building_tables import report_rows
 
-        rows = report_rows(result.project.buildings, result.buildings)
+        rows = report_rows(result.project.buildings, result.buildings, result.building_envelope)
         outputs["buildings_table"] = write_rows_csv(out / "buildings.csv", rows)
     if result.utilities is not None:
         from settle.assessments.utility_tables import utility_rows
 
-        rows = utility_rows(result.project.utilities, result.utilities, geometry=False)
+        rows = utility_rows(result.project.utilities, result.utilities, geometry=False,
+                            envelope=result.utility_envelope)
         outputs["utilities_table"] = write_rows_csv(out / "utilities.csv", rows)
     if result.face:
         outputs.update(_write_face(result, out))

@@ -23,15 +23,25 @@ def summary_table(summary: dict, folder) -> str:
         counts = ", ".join(f"{c}: {n}" for c, n in buildings["by_category"].items())
         rows.append(("buildings by category", f"{counts} (of {buildings['buildings']}; "
                                               f"{buildings['screened_out_stage_1']} screened out at stage 1)"))
+        envelope = buildings.get("envelope")
+        if envelope:
+            worst = ", ".join(f"{c}: {n}" for c, n in envelope["by_worst_category"].items())
+            rows.append(("worst over the sequence", f"{worst} ({envelope['worse_than_stage']} worse than at this "
+                                                    "stage)"))
     utilities = summary.get("utilities")
     if utilities:
         counts = ", ".join(f"{s}: {n}" for s, n in utilities["by_status"].items() if n)
         rows.append(("utilities by status", f"{counts} (of {utilities['pipes']})"))
+        envelope = utilities.get("envelope")
+        if envelope:
+            worst = ", ".join(f"{k}: {n}" for k, n in envelope["by_worst_status"].items() if n)
+            rows.append(("worst over the sequence", worst))
     for face in summary.get("face_support", []):
         rows.append(("face support window",
                      f"{face['drive']}: smallest {face['face_min_window_kpa']:.1f} kPa at chainage "
                      f"{face['face_min_window_chainage_m']:.1f} m; {face['face_closed_stations']} closed, "
-                     f"{face['face_narrow_stations']} narrow of {face['stations']} stations"))
+                     f"{face['face_narrow_stations']} narrow of {face['stations']} stations"
+                     + (f"; least cover {face['min_cover_m']:.2f} m" if face.get("min_cover_m") is not None else "")))
     files = summary.get("outputs", {})
     names = [v for v in files.values() if isinstance(v, str)] + [n for k, v in files.items() if isinstance(v, list)
                                                                  and k != "styles" for n in v]

@@ -17,7 +17,7 @@ from .buildings import BuildingResults
 BUILDING_FIELDS = ("id", "height_m", "foundation_depth_m", "structure", "e_over_g", "defaults_used",
                    "max_settlement_mm", "max_tilt", "screened_out", "deflection_ratio", "horizontal_strain_pct",
                    "tensile_strain_pct", "category", "category_label", "governing_wall", "governing_mode",
-                   "stiffness_correction", "note")
+                   "stiffness_correction", "note", "worst_category", "worst_drive", "worst_face_chainage_m")
 WALL_FIELDS = ("building_id", "wall", "part", "length_m", "parts", "governing_from_m", "governing_to_m",
                "governing_mode", "length_to_height", "greenfield_deflection_ratio",
                "greenfield_horizontal_strain_pct", "deflection_ratio", "horizontal_strain_pct", "bending_strain_pct",
@@ -66,11 +66,13 @@ def _carried(column: pd.Series) -> np.ndarray:
     return values
 
 
-def building_columns(buildings: Buildings, results: BuildingResults) -> dict:
+def building_columns(buildings: Buildings, results: BuildingResults, envelope=None) -> dict:
     """Columns of the `buildings` GIS layer: the input attributes, then BUILDING_FIELDS, then `geometry`
     (MultiPolygon for every row, so the layer has one geometry type).
 
-    Integers that may be NULL (category, governing_wall) are pandas Int64 arrays; floats use NaN for NULL.
+    Integers that may be NULL (category, governing_wall, worst_category) are pandas Int64 arrays; floats use NaN
+    for NULL. The worst_ fields come from the construction envelope (`settle.procedure.envelope.BuildingEnvelope`):
+    empty without one; worst_drive and worst_face_chainage_m empty where the completion of the sequence governs.
     """
     cols = _input_columns(buildings)
     not_assessed = results.category == NOT_ASSESSED
@@ -94,6 +96,7 @@ def building_columns(buildings: Buildings, results: BuildingResults) -> dict:
         "stiffness_correction": results.stiffness_correction,
         "note": results.note,
     })
+    cols.update(_worst_columns(len(buildings), envelope))
     polys = np.asarray(buildings.polygons, dtype=object)
     single = np.flatnonzero(shapely.get_type_id(polys) == 3)
     geometry = polys.copy()
@@ -101,6 +104,17 @@ def building_columns(buildings: Buildings, results: BuildingResults) -> dict:
         geometry[single] = shapely.multipolygons(polys[single], indices=np.arange(len(single)))
     cols["geometry"] = geometry
     return cols
+
+
+def _worst_columns(n: int, envelope) -> dict:
+    """worst_category, worst_drive, worst_face_chainage_m of the construction envelope (empty without one)."""
+    if envelope is None:
+        return {"worst_category": _nullable(np.zeros(n), np.ones(n, dtype=bool)),
+                "worst_drive": np.full(n, None, dtype=object), "worst_face_chainage_m": np.full(n, np.nan)}
+    worst = np.asarray(envelope.worst_category)
+    drive = np.array([d if d else None for d in envelope.worst_drive], dtype=object)
+    return {"worst_category": _nullable(worst, worst == NOT_ASSESSED), "worst_drive": drive,
+            "worst_face_chainage_m": np.asarray(envelope.worst_face_chainage_m, dtype=float)}
 
 
 def _parts_text(results: BuildingResults, wall_index: np.ndarray) -> np.ndarray:
@@ -148,10 +162,10 @@ def wall_columns(buildings: Buildings, results: BuildingResults) -> dict:
     return cols
 
 
-def report_rows(buildings: Buildings, results: BuildingResults) -> list[dict]:
+def report_rows(buildings: Buildings, results: BuildingResults, envelope=None) -> list[dict]:
     """Rows of the CSV table for the assessment report: BUILDING_FIELDS per building, plus `x_m`, `y_m` of a point
     inside the footprint; empty text for values that do not exist (NaN, or no category)."""
-    cols = building_columns(buildings, results)
+    cols = building_columns(buildings, results, envelope)
     where = shapely.point_on_surface(np.asarray(buildings.polygons, dtype=object))
     cols["x_m"], cols["y_m"] = shapely.get_x(where), shapely.get_y(where)
     names = BUILDING_FIELDS + ("x_m", "y_m")

@@ -300,9 +300,10 @@ def _batches(buildings: Buildings, walls: Walls, interior_spacing_m: float):
     return [(a, b, wall_range[a], wall_range[b]) for a, b in zip(edges[:-1], edges[1:])]
 
 
-def _evaluate(movements, x, y, depth) -> dict[str, np.ndarray]:
-    """Settlement [mm], tilt [-] and horizontal displacement ux, uy [mm] at the points."""
-    m: Movements = movements(x, y, depth)
+def _evaluate(movements, x, y, depth, owner=None) -> dict[str, np.ndarray]:
+    """Settlement [mm], tilt [-] and horizontal displacement ux, uy [mm] at the points (`owner`, the building of each
+    point, is passed on to a movements callable that wants it)."""
+    m: Movements = movements(x, y, depth) if owner is None else movements(x, y, depth, owner)
     return {"settlement_mm": np.asarray(m.settlement_mm, dtype=float), "tilt": np.hypot(m.slope_x, m.slope_y),
             "ux_mm": np.asarray(m.ux_mm, dtype=float), "uy_mm": np.asarray(m.uy_mm, dtype=float)}
 
@@ -339,8 +340,24 @@ def _governing(parts: PartResults, walls: Walls, assessed: np.ndarray):
     return wall_part, worst_wall
 
 
+def footprint_maxima(buildings: Buildings, movements: Callable[..., Movements],
+                     options: AssessmentOptions | None = None):
+    """The largest settlement [mm] and tilt [-] over each building's stage 1 points (walls and interior), and
+    whether any of its points has undefined movements: what stage 1 screens on, without stage 2."""
+    options = options or AssessmentOptions()
+    walls = footprint_walls(buildings.polygons)
+    n = len(buildings)
+    settlement, tilt, undefined = np.full(n, np.nan), np.full(n, np.nan), np.zeros(n, dtype=bool)
+    for first, end, w_first, w_end in _batches(buildings, walls, options.interior_spacing_m):
+        samples = _Samples.of(buildings, walls, first, end, w_first, w_end, options.interior_spacing_m)
+        field_ = _evaluate(movements, samples.x, samples.y, buildings.foundation_depth_m[samples.owner])
+        settlement[first:end], tilt[first:end], undefined[first:end] = _footprint_maxima(samples.owner - first,
+                                                                                         field_, end - first)
+    return settlement, tilt, undefined
+
+
 def assess_buildings(buildings: Buildings, movements: Callable[..., Movements],
-                     options: AssessmentOptions | None = None) -> BuildingResults:
+                     options: AssessmentOptions | None = None, by_building: bool = False) -> BuildingResults:
     """Stage 1 screening and stage 2 deep-beam damage categories of every building.
 
     Parameters
@@ -350,6 +367,8 @@ def assess_buildings(buildings: Buildings, movements: Callable[..., Movements],
                                  movements of every drive at the construction stage of the run, at points at a
                                  depth below the ground surface. NaN where undefined (below a tunnel crown).
     options : AssessmentOptions
+    by_building : bool           Call movements(x_m, y_m, depth_m, building) with the index of each point's building,
+                                 for a field that differs from building to building (construction stages).
 
     Returns
     -------
@@ -366,7 +385,8 @@ def assess_buildings(buildings: Buildings, movements: Callable[..., Movements],
     found = []
     for first, end, w_first, w_end in _batches(buildings, walls, options.interior_spacing_m):
         samples = _Samples.of(buildings, walls, first, end, w_first, w_end, options.interior_spacing_m)
-        field_ = _evaluate(movements, samples.x, samples.y, buildings.foundation_depth_m[samples.owner])
+        field_ = _evaluate(movements, samples.x, samples.y, buildings.foundation_depth_m[samples.owner],
+                           samples.owner if by_building else None)
         # stage 1
         s, t, u = _footprint_maxima(samples.owner - first, field_, end - first)
         max_settlement[first:end], max_tilt[first:end], undefined[first:end] = s, t, u

@@ -16,16 +16,25 @@ UTILITY_FIELDS = (
     "allowable_joint_opening_mm", "axial_limit_in", "limits_source", "bending_reduction_factor",
     "bending_utilisation", "axial_utilisation", "fibre_utilisation", "joint_rotation_utilisation",
     "joint_opening_utilisation", "utilisation", "governing_check", "governing_chainage_m", "status", "not_checked",
+    "max_joint_axial_opening_mm", "max_joint_rotation_opening_mm",
+    "worst_status", "worst_status_class", "worst_utilisation", "worst_drive", "worst_face_chainage_m",
 )
 CRITICAL_POINT_FIELDS = (
     "id", "check", "governs", "utilisation", "chainage_m", "depth_m", "settlement_mm", "curvature_per_m",
     "bending_strain_ue", "axial_strain_ue", "joint_rotation_deg", "joint_opening_mm",
+    "joint_axial_opening_mm", "joint_rotation_opening_mm",
 )
 
 
-def utility_rows(utilities: Utilities, results: UtilityResults, geometry: bool = True) -> list[dict]:
+def utility_rows(utilities: Utilities, results: UtilityResults, geometry: bool = True, envelope=None) -> list[dict]:
     """One dict per pipe with the fields of `UTILITY_FIELDS` (and a shapely "geometry", the plan line, unless
-    `geometry` is False: the CSV table). Lengths [m], strains [microstrain], rotations [deg], openings [mm]."""
+    `geometry` is False: the CSV table). Lengths [m], strains [microstrain], rotations [deg], openings [mm].
+
+    The worst_ fields come from the construction envelope (`settle.procedure.envelope.UtilityEnvelope`): None
+    without one; worst_drive and worst_face_chainage_m None where the completion of the sequence governs.
+
+    `max_joint_opening_mm` is the largest joint opening at the extreme fibre (the one checked);
+    `max_joint_axial_opening_mm` and `max_joint_rotation_opening_mm` are its axial and rotation parts at that place."""
     u, r = utilities, results
     lengths = u.length_m
     rows = []
@@ -50,12 +59,26 @@ def utility_rows(utilities: Utilities, results: UtilityResults, geometry: bool =
             row[f"{c}_utilisation"] = r.check_utilisation[c][p]
         row.update({"utilisation": r.utilisation[p], "governing_check": r.governing_check[p],
                     "governing_chainage_m": r.governing_chainage_m[p], "status": r.status[p],
-                    "not_checked": r.not_checked[p]})
+                    "not_checked": r.not_checked[p],
+                    "max_joint_axial_opening_mm": r.max_joint_axial_opening_mm[p],
+                    "max_joint_rotation_opening_mm": r.max_joint_rotation_opening_mm[p]})
+        row.update(_worst(envelope, p))
         row = {k: (float(v) if isinstance(v, np.floating) else v) for k, v in row.items()}
         if geometry:
             row["geometry"] = shapely.LineString(u.lines_xy[p])
         rows.append(row)
     return rows
+
+
+def _worst(envelope, p: int) -> dict:
+    """The construction envelope's worst_ fields of pipe p (empty without an envelope; drive and face empty where
+    completion governs)."""
+    if envelope is None:
+        return {"worst_status": None, "worst_status_class": None, "worst_utilisation": np.nan, "worst_drive": None,
+                "worst_face_chainage_m": np.nan}
+    return {"worst_status": str(envelope.worst_status[p]), "worst_status_class": int(envelope.worst_status_class[p]),
+            "worst_utilisation": float(envelope.worst_utilisation[p]), "worst_drive": envelope.worst_drive[p] or None,
+            "worst_face_chainage_m": float(envelope.worst_face_chainage_m[p])}
 
 
 def critical_point_rows(utilities: Utilities, results: UtilityResults) -> list[dict]:
@@ -64,7 +87,8 @@ def critical_point_rows(utilities: Utilities, results: UtilityResults) -> list[d
     One row per pipe and check that has a place (joint checks only on jointed pipes), with the fields of
     `CRITICAL_POINT_FIELDS` and a shapely Point "geometry"; `governs` is True on the row of the pipe's governing
     check. A pipe that crosses the tunnel has one row, check "crosses the tunnel", at the middle of the stretch below
-    the crown. The demands are those at that place (the joint values for a joint there).
+    the crown. The demands are those at that place (the joint values for a joint there; `joint_opening_mm` at the
+    extreme fibre, the sum of `joint_axial_opening_mm` and `joint_rotation_opening_mm`).
     """
     prof, rows = results.profiles, []
 
@@ -76,6 +100,8 @@ def critical_point_rows(utilities: Utilities, results: UtilityResults) -> list[d
                 "axial_strain_ue": float(prof.axial_strain_ue[k]),
                 "joint_rotation_deg": float(prof.joint_rotation_deg[k]),
                 "joint_opening_mm": float(prof.joint_opening_mm[k]),
+                "joint_axial_opening_mm": float(prof.joint_axial_opening_mm[k]),
+                "joint_rotation_opening_mm": float(prof.joint_rotation_opening_mm[k]),
                 "geometry": shapely.Point(prof.x_m[k], prof.y_m[k])}
 
     for p in range(len(utilities)):

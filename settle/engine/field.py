@@ -22,8 +22,9 @@ TILE_SIZE = 128
 PAIRS_PER_BATCH = 400_000
 
 
-def _element_movements(elements: Elements, e: np.ndarray, x, y, trough_width, axis_depth) -> dict:
-    """Movements of elements `e` at points (x, y), in project axes. Metres and strains as fractions."""
+def _element_movements(elements: Elements, e: np.ndarray, x, y, trough_width, axis_depth, length=None) -> dict:
+    """Movements of elements `e` at points (x, y), in project axes, each element `length` long from its start (its
+    plan length when None). Metres and strains as fractions."""
     c = elements.direction[e]
     dx = x - elements.start_xy[e, 0]
     dy = y - elements.start_xy[e, 1]
@@ -31,7 +32,8 @@ def _element_movements(elements: Elements, e: np.ndarray, x, y, trough_width, ax
     u = dx * cx + dy * cy
     v = -dx * cy + dy * cx
     m = straight_tunnel_movements(
-        u, v, elements.plan_length_m[e], elements.volume_per_m[e], trough_width, axis_depth
+        u, v, elements.plan_length_m[e] if length is None else length, elements.volume_per_m[e], trough_width,
+        axis_depth
     )
     cxx, cyy, cxy = cx * cx, cy * cy, cx * cy
     euu, evv, euv = m["strain_uu"], m["strain_vv"], m["strain_uv"]
@@ -113,34 +115,102 @@ def _pairs_within(elements: Elements, radius: np.ndarray, x: np.ndarray, y: np.n
         yield p[keep], e[keep]
 
 
-def movements_at_points(elements: Elements, ground: GroundModel, x, y, depth, precision_m: float = 1e-6) -> Movements:
+def movements_at_points(elements: Elements, ground: GroundModel, x, y, depth, precision_m: float = 1e-6,
+                        faces_m=None, face_drive: int | None = None) -> Movements:
     """Movements at places, each at its own depth below the ground surface (0 = at the surface).
 
     Each element is evaluated at the places within its reach radius (beyond, its surface settlement is below
-    `precision_m`), so the cost grows with the places that move, not with places x elements. Below the surface the trough
-    narrows with depth (`troughs.subsurface_width_ratio`) and keeps its volume, so Smax(z) = Vs / (sqrt(2 pi) i(z)).
-    Places at or below the crown of an element that reaches them get NaN: the subsurface relations do not hold there.
+    `precision_m`), so the cost grows with the places that move, not with places x elements. Below the surface the
+    trough narrows with depth (`troughs.subsurface_width_ratio`) and keeps its volume, so Smax(z) = Vs / (sqrt(2 pi)
+    i(z)). Places at or below the crown of an element that reaches them get NaN: the subsurface relations do not hold
+    there.
+
+    With `faces_m` (one chainage per place) the elements of drive `face_drive` count at each place only as far as that
+    place's face: each such element is cut there (none of it beyond the face), as if the drive were excavated to it.
+    One call then gives every place the movements of its own construction stage. [m]
     """
     x, y, depth = (np.asarray(a, dtype=float) for a in (x, y, depth))
     n = len(x)
     sums = {f: np.zeros(n) for f in FIELDS}
     below_crown = np.zeros(n, dtype=bool)
     reach = elements.reach_radius_m(precision_m)
-    for p, e in _pairs_within(elements, reach, x, y, 2 * PAIRS_PER_BATCH):
-        z0 = elements.axis_depth_m[e]
-        d = depth[p]
-        deep = d >= z0 - elements.outer_diameter_m[e] / 2.0
+    # At several faces the same place comes once per face: its elements are found once.
+    search = _pairs_within if faces_m is None else _pairs_of_copies
+    for p, e in search(elements, reach, x, y, 2 * PAIRS_PER_BATCH):
+        length = None
+        if faces_m is not None:
+            p, e, length = _cut_at_faces(elements, p, e, np.asarray(faces_m, dtype=float), face_drive)
+        deep, i, below = _at_depth(elements, ground, e, depth[p])
         below_crown[p[deep]] = True
-        d_ok = np.where(deep, 0.0, d)
-        upper = elements.surface_level_m[e] - d_ok
-        share = ground.cohesive_fraction(upper, elements.axis_level_m[e])
-        i = elements.trough_width_m[e] * subsurface_width_ratio(d_ok, z0, share)
-        mov = _element_movements(elements, e, x[p], y[p], i, z0 - d_ok)
+        mov = _element_movements(elements, e, x[p], y[p], i, below, length)
         for f in FIELDS:
             sums[f] += np.bincount(p, weights=mov[f], minlength=n)
     for f in FIELDS:
         sums[f][below_crown] = np.nan
     return _to_movements(x, y, depth, sums)
+
+
+def _at_depth(elements: Elements, ground: GroundModel, e: np.ndarray, depth: np.ndarray):
+    """For (place, element) pairs at places `depth` below the surface: whether the place is at or below the
+    element's crown, the trough width there i(z) [m] and the axis depth below the place z0 - z [m] (taken at the
+    surface for places below the crown, whose movements are then left undefined)."""
+    z0 = elements.axis_depth_m[e]
+    deep = depth >= z0 - elements.outer_diameter_m[e] / 2.0
+    d_ok = np.where(deep, 0.0, depth)
+    share = ground.cohesive_fraction(elements.surface_level_m[e] - d_ok, elements.axis_level_m[e])
+    return deep, elements.trough_width_m[e] * subsurface_width_ratio(d_ok, z0, share), z0 - d_ok
+
+
+def tilt_bound_at_points(elements: Elements, ground: GroundModel, x, y, depth, precision_m: float = 1e-6):
+    """An upper bound of the ground slope at places over every construction stage of these elements: whatever
+    length of each element is excavated, its slope there is at most (S(v)/i) sqrt(phi(0)^2 + v^2/i^2), with S(v)
+    the plane-strain settlement of the element at the place's offset v, i the trough width there and phi(0) =
+    1/sqrt(2 pi) the largest slope of the longitudinal (cumulative normal) profile; the slopes of the elements add at
+    most up to the sum of these. NaN at places at or below a crown. [-]
+
+    References
+    ----------
+    Attewell, P. B. & Woodman, J. P. (1982). Predicting the dynamics of ground settlement and its derivatives caused
+    by tunnelling in soil. Ground Engineering 15(8), 13-22 (the cumulative normal longitudinal profile; from memory).
+    """
+    x, y, depth = (np.asarray(a, dtype=float) for a in (x, y, depth))
+    bound = np.zeros(len(x))
+    below_crown = np.zeros(len(x), dtype=bool)
+    reach = elements.reach_radius_m(precision_m)
+    for p, e in _pairs_within(elements, reach, x, y, 2 * PAIRS_PER_BATCH):
+        deep, i, _ = _at_depth(elements, ground, e, depth[p])
+        below_crown[p[deep]] = True
+        v = -(x[p] - elements.start_xy[e, 0]) * elements.direction[e, 1] + \
+            (y[p] - elements.start_xy[e, 1]) * elements.direction[e, 0]
+        plane = elements.volume_per_m[e] / (np.sqrt(2.0 * np.pi) * i) * np.exp(-0.5 * (v / i) ** 2)
+        bound += np.bincount(p, weights=plane / i * np.sqrt(1.0 / (2.0 * np.pi) + (v / i) ** 2), minlength=len(x))
+    bound[below_crown] = np.nan
+    return bound
+
+
+def _pairs_of_copies(elements: Elements, reach: np.ndarray, x: np.ndarray, y: np.ndarray, batch: int):
+    """`_pairs_within` for places that repeat (one place at several construction stages): the elements near each
+    distinct place are found once, and each pair is handed on for every copy of the place."""
+    places, inverse = np.unique(np.column_stack([x, y]), axis=0, return_inverse=True)
+    inverse = inverse.ravel()
+    copies = np.argsort(inverse, kind="stable")
+    count = np.bincount(inverse, minlength=len(places))
+    first = np.cumsum(count) - count
+    for q, e in _pairs_within(elements, reach, places[:, 0], places[:, 1], max(1, batch // max(1, count.max()))):
+        k = count[q]
+        p = copies[np.repeat(first[q], k) + (np.arange(k.sum()) - np.repeat(np.cumsum(k) - k, k))]
+        yield p, np.repeat(e, k)
+
+
+def _cut_at_faces(elements: Elements, p: np.ndarray, e: np.ndarray, faces_m: np.ndarray, face_drive):
+    """The (place, element) pairs that count with each place's face, and the plan length of each element that does:
+    elements of `face_drive` in proportion to the chainage excavated up to the face, the others whole. [m]"""
+    own = elements.drive[e] == face_drive
+    span = elements.chainage_to_m[e] - elements.chainage_from_m[e]
+    share = np.where(own, np.clip((faces_m[p] - elements.chainage_from_m[e]) / np.maximum(span, 1e-12), 0.0, 1.0),
+                     1.0)
+    keep = share > 0.0
+    return p[keep], e[keep], (elements.plan_length_m[e] * share)[keep]
 
 
 def _rows_in_rectangles(corners: np.ndarray, origin_y: float, h: float):

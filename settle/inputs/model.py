@@ -115,18 +115,21 @@ class Project:
     output: Output
     points: Points | None = None
     path: Path | None = None  # the project file, when read from one
-    # Face support check (settle.face_stations): runs when strengths are given, one LayerStrength per layer.
+    # Face support check (settle.assessments.face_stations): runs when strengths are given, one per layer.
     strengths: tuple = ()
-    rivers: tuple = ()  # settle.face_stations.River items
-    face: object | None = None  # settle.face_stations.FaceOptions; None = the documented defaults
-    # Buildings (settle.buildings): footprints read from [buildings] file, and the assessment's settings.
-    buildings: object | None = None  # settle.footprints.Buildings
-    building_options: object | None = None  # settle.buildings.AssessmentOptions
+    rivers: tuple = ()  # settle.inputs.face_settings.River items
+    face: object | None = None  # settle.inputs.face_settings.FaceOptions; None = the documented defaults
+    # Buildings (settle.assessments.buildings): footprints read from [buildings] file, and the assessment's settings.
+    buildings: object | None = None  # settle.inputs.footprints.Buildings
+    building_options: object | None = None  # settle.inputs.building_settings.AssessmentOptions
     # Trigger levels for monitoring readings, (amber_mm, red_mm): [monitoring] amber_mm, red_mm.
     monitoring: tuple[float, float] | None = None
-    # Buried utilities (settle.pipelines): the lines read from [utilities] file, and the assessment's settings.
-    utilities: object | None = None  # settle.utility_lines.Utilities
-    utility_options: object | None = None  # settle.pipelines.UtilityOptions
+    # Buried utilities (settle.assessments.utilities): the lines read from [utilities] file, and the settings.
+    utilities: object | None = None  # settle.inputs.utility_lines.Utilities
+    utility_options: object | None = None  # settle.inputs.utility_settings.UtilityOptions
     warnings: tuple[str, ...] = field(default_factory=tuple)
     # Every file the loader read, the project file first, resolved, in the order read (a shapefile with its sidecars).
     input_files: tuple = ()
+    # The construction sequence of the envelope ([construction]): settle.inputs.construction_settings.Construction;
+    # None = the documented defaults.
+    construction: object | None = None

@@ -65,6 +65,11 @@ the project's vertical datum, up positive)
     memory_limit_mb     number more than 0, optional: the largest memory a run may plan to use [MB]; default: half
                         of this machine's available memory.
 
+[construction]          optional: the construction envelope (settle.procedure.envelope).
+    sequence            list of drive names in driving order, each drive once; default: the order of [[drives]].
+    stage_step_m        number more than 0 and at most 50: the face step between two stages of the envelope;
+                        default (our choice): a quarter of the drive's smallest trough width i = K z0.
+
 Example
 -------
     [project]
@@ -105,13 +110,14 @@ from pathlib import Path
 import pyproj
 
 from ..errors import InputError
+from .construction_settings import CONSTRUCTION_KEYS, MAX_STAGE_STEP_M, Construction, check_sequence
 from .building_settings import STIFFNESS_METHODS, AssessmentOptions
 from .footprints import DEFAULT_E_OVER_G, MODIFICATION_ATTRIBUTES, BuildingDefaults, read_buildings
 from .utility_lines import VERTICALS as UTILITY_VERTICALS
 from .utility_lines import UtilityReadOptions, read_utilities
 from .utility_settings import UtilityOptions
-from .face_settings import (SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach, check_face_options,
-                            check_layer_strengths, check_rivers, check_support_reaches)
+from .face_settings import (K0_RANGE, SUPPORT_MODES, FaceOptions, LayerStrength, River, SupportReach,
+                            check_face_options, check_layer_strengths, check_rivers, check_support_reaches)
 from .model import (BEHAVIOURS, DEFAULT_INPUT_SIZE_LIMIT_MB, VERTICAL_REFERENCES, Drive, Ground, Layer, Output,
                     Project, Reach, Surface)
 from .tables import (COORDINATE_RANGE, DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE, Alignment, bounds_text,
@@ -119,11 +125,11 @@ from .tables import (COORDINATE_RANGE, DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE,
                      read_surface_points, shapefile_sidecars, shown)
 
 TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings",
-            "monitoring")
+            "monitoring", "construction")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
-STRENGTH_KEYS = ("friction_angle_deg", "cohesion_kpa", "undrained_strength_kpa", "shear_modulus_mpa")
+STRENGTH_KEYS = ("friction_angle_deg", "cohesion_kpa", "undrained_strength_kpa", "shear_modulus_mpa", "k0")
 DRIVE_KEYS = ("name", "alignment", "outer_diameter_m", "volume_loss_pct", "face_chainage_m", "inner_diameter_m",
               "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z", "reaches",
               "face_support")
@@ -203,7 +209,19 @@ def load_project(path) -> Project:
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
                    warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face, utilities=utilities,
                    utility_options=utility_options, buildings=buildings, building_options=building_options,
-                   monitoring=monitoring, input_files=tuple(files.read))
+                   monitoring=monitoring, input_files=tuple(files.read), construction=_construction(doc, name, drives))
+
+
+def _construction(doc: dict, file: str, drives) -> Construction | None:
+    """[construction]: the drives' driving order and the face step of the envelope's stages (both optional)."""
+    if "construction" not in doc:
+        return None
+    where = f"{file} [construction]"
+    table = _table(doc, "construction", file)
+    _check_keys(table, CONSTRUCTION_KEYS, where)
+    sequence = check_sequence(table.get("sequence"), [d.name for d in drives], where)
+    step = _number(table, "stage_step_m", where, required=False, gt=0.0, le=MAX_STAGE_STEP_M)
+    return Construction(sequence=sequence, stage_step_m=step)
 
 
 # ------------------------------------------------------------------------------------------------ generic helpers
@@ -611,7 +629,8 @@ def _face_inputs(doc: dict, file: str, ground: Ground, drives) -> tuple[tuple, t
                 friction_angle_deg=_number(table, "friction_angle_deg", where, ge=0.0, le=50.0),
                 cohesion_kpa=_number(table, "cohesion_kpa", where, ge=0.0),
                 undrained_strength_kpa=_number(table, "undrained_strength_kpa", where, required=False, gt=0.0),
-                shear_modulus_mpa=_number(table, "shear_modulus_mpa", where, required=False, gt=0.0)))
+                shear_modulus_mpa=_number(table, "shear_modulus_mpa", where, required=False, gt=0.0),
+                k0=_number(table, "k0", where, required=False, ge=K0_RANGE[0], le=K0_RANGE[1])))
         strengths = tuple(items)
         check_layer_strengths(strengths, ground.layers, file)
 

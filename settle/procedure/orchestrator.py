@@ -1,6 +1,6 @@
 """The orchestrator: the engineer's procedure, step by step.
 
-    result = Assessment(project).greenfield().buildings().utilities().face().result
+    result = Assessment(project).greenfield().buildings().utilities().envelope().face().result
 
 Each step can be run and tested alone; the numbers come from the model functions of `settle.engine.troughs`,
 superposed by `settle.engine.field`, on the route of `settle.inputs.route`, and from the assessments of
@@ -38,6 +38,8 @@ class Assessment:
         self._face: list = []
         self._utilities = None
         self._buildings = None
+        self._building_envelope = None
+        self._utility_envelope = None
 
     def _timed(self, name, started):
         self.timings[name] = time.perf_counter() - started
@@ -64,7 +66,8 @@ class Assessment:
         self._result = Result(project=self.project, drives=self.drives, grid=grid, tiles=tiles, points=points,
                               point_ids=ids, settlement_volume_m3=volume, warnings=self.warnings,
                               timings_s=self.timings, face=self._face, utilities=self._utilities,
-                              buildings=self._buildings)
+                              buildings=self._buildings, building_envelope=self._building_envelope,
+                              utility_envelope=self._utility_envelope)
         return self
 
     def buildings(self) -> "Assessment":
@@ -96,6 +99,28 @@ class Assessment:
         if self._result is not None:
             setattr(self._result, stage, results)
         return results
+
+    def envelope(self) -> "Assessment":
+        """The worst each building and utility sees over the whole construction sequence (`envelope`)."""
+        p = self.project
+        if p.buildings is None and p.utilities is None:
+            return self
+        from .envelope import Sequence, building_envelope, utility_envelope
+
+        t = time.perf_counter()
+        self.progress("envelope", 0.0)
+        sequence = Sequence(p, self.ground)
+        if p.buildings is not None:
+            self._building_envelope = building_envelope(sequence, p.buildings, p.building_options)
+        self.progress("envelope", 0.5)
+        if p.utilities is not None:
+            self._utility_envelope = utility_envelope(sequence, p.utilities, p.utility_options)
+        self.progress("envelope", 1.0)
+        self._timed("envelope", t)
+        if self._result is not None:
+            self._result.building_envelope = self._building_envelope
+            self._result.utility_envelope = self._utility_envelope
+        return self
 
     def face(self) -> "Assessment":
         """Face support pressure window along every drive (runs when the layers carry their strengths)."""
@@ -138,7 +163,7 @@ def drives_and_elements(project: Project, ground: GroundModel, warnings: list[st
     where = project.path.name if project.path else "project"
     drives, parts = [], []
     for index, drive in enumerate(project.drives):
-        geometry, found = build_drive(drive, ground, where)
+        geometry, found = build_drive(drive, ground, where, rivers=project.rivers)
         parts.append(tunnel_elements(drive, geometry, ground, index))
         drives.append(geometry)
         warnings.extend(found)
@@ -167,7 +192,8 @@ def face_checks(project: Project, ground: GroundModel, drives, progress, warning
     for k, (drive, geometry) in enumerate(zip(project.drives, drives)):
         progress("face support", k / len(project.drives))
         stations = face_stations(geometry, ground, project.strengths, project.rivers, project.face,
-                                 drive.face_support, where)
+                                 drive.face_support, where,
+                                 design_drive=drive)
         checks.append(stations)
         warnings.extend(stations.warnings)
     return checks
@@ -182,4 +208,4 @@ def run(project: Project | str | Path, progress=None) -> Result:
         project = load_project(project)
     assessment = Assessment(project, progress).route()
     check_run_size(project, assessment.drives, assessment.elements)
-    return assessment.greenfield().buildings().utilities().face().result
+    return assessment.greenfield().buildings().utilities().envelope().face().result

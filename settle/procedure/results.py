@@ -32,6 +32,9 @@ class Result:
     face: list = field(default_factory=list)  # settle.face_stations.FaceStations per drive, when the check ran
     utilities: object | None = None  # settle.pipelines.UtilityResults, when the project has [utilities]
     buildings: object | None = None  # settle.buildings.BuildingResults, when the project has [buildings]
+    # The worst over the construction sequence (settle.procedure.envelope), when there are buildings or utilities.
+    building_envelope: object | None = None  # BuildingEnvelope
+    utility_envelope: object | None = None  # UtilityEnvelope
 
     @property
     def lost_volume_m3(self) -> float:

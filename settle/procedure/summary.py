@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..inputs.route import rounded_cover_m
 from ..version import __version__
 from .results import Movements, Result
 
@@ -43,8 +44,9 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
                 "face_chainage_m": None if d.face_chainage_m is None else _r(d.face_chainage_m, 2),
                 "excavated_to_m": _r(d.excavated_to_m, 2),
                 "outer_diameter_m": d.outer_diameter_m,
-                "min_cover_m": _r(d.cover_m[k], 2),
+                "min_cover_m": rounded_cover_m(d.min_cover_m),
                 "min_cover_at_vertex_chainage_m": _r(d.chainage_m[k], 2),
+                "min_cover_chainage_m": _r(d.min_cover_chainage_m, 2),
                 "axis_depth_range_m": [_r(d.axis_depth_m.min(), 2), _r(d.axis_depth_m.max(), 2)],
                 "lost_volume_m3": _r(d.lost_volume_m3, 4),
                 "tunnel_elements": d.element_count,
@@ -93,18 +95,52 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
         from ..assessments.building_tables import category_counts
 
         summary["buildings"] = category_counts(p.buildings, result.buildings)
+        if result.building_envelope is not None:
+            summary["buildings"]["envelope"] = _building_envelope(result.building_envelope, result)
     if result.utilities is not None:
         from ..assessments.utility_tables import status_counts
 
         summary["utilities"] = {"pipes": len(result.utilities), "by_status": status_counts(result.utilities)}
+        if result.utility_envelope is not None:
+            summary["utilities"]["envelope"] = _utility_envelope(result.utility_envelope)
     if result.face:
         from ..assessments.face_tables import face_summary
 
+        least = {d.name: rounded_cover_m(d.min_cover_m) for d in result.drives}
         summary["face_support"] = [
             {"drive": st.drive, **{k: (_r(v, 2) if isinstance(v, float) else v) for k, v in face_summary(st).items()},
-             "stations": len(st), "open_stations": int((st.status == "open").sum())}
+             "stations": len(st), "open_stations": int((st.status == "open").sum()),
+             "min_cover_m": least.get(st.drive)}
             for st in result.face
         ]
     if outputs:
         summary["outputs"] = outputs
     return summary
+
+
+def _sequence(result: Result) -> list[str]:
+    from .envelope import sequence_order
+
+    return [result.project.drives[d].name for d in sequence_order(result.project)]
+
+
+def _building_envelope(envelope, result: Result) -> dict:
+    """Buildings by their worst category over the construction sequence, and how many are worse during the drive
+    than at the stage of the run's faces."""
+    worst = np.asarray(envelope.worst_category)
+    return {"sequence": _sequence(result),
+            "by_worst_category": {str(c): int(np.sum(worst == c)) for c in range(6)},
+            "not_assessed": int(np.sum(worst < 0)),
+            "worse_than_stage": int(np.sum(worst > np.asarray(result.buildings.category))),
+            "governed_during_a_drive": int(np.sum(np.asarray(envelope.worst_drive) != "")),
+            "note": "worst damage category of each building over every stage of the sequence (each drive driven in "
+                    "turn, its face advancing from launch to reception) and its completion"}
+
+
+def _utility_envelope(envelope) -> dict:
+    """Pipes by their worst status over the construction sequence."""
+    from ..assessments.utilities import STATUSES
+
+    worst = list(envelope.worst_status)
+    return {"by_worst_status": {s: worst.count(s) for s in STATUSES},
+            "governed_during_a_drive": int(np.sum(np.asarray(envelope.worst_drive) != ""))}
