@@ -191,14 +191,14 @@ def tilt_bound_at_points(elements: Elements, ground: GroundModel, x, y, depth, p
 def _pairs_of_copies(elements: Elements, reach: np.ndarray, x: np.ndarray, y: np.ndarray, batch: int):
     """`_pairs_within` for places that repeat (one place at several construction stages): the elements near each
     distinct place are found once, and each pair is handed on for every copy of the place."""
-    places, inverse = np.unique(np.column_stack([x, y]), axis=0, return_inverse=True)
-    inverse = inverse.ravel()
-    copies = np.argsort(inverse, kind="stable")
-    count = np.bincount(inverse, minlength=len(places))
-    first = np.cumsum(count) - count
-    for q, e in _pairs_within(elements, reach, places[:, 0], places[:, 1], max(1, batch // max(1, count.max()))):
+    copies = np.lexsort((y, x))  # copies of a place side by side (a float sort: fast, unlike unique on rows)
+    new = np.r_[True, (np.diff(x[copies]) != 0) | (np.diff(y[copies]) != 0)] if len(x) else np.empty(0, bool)
+    starts = np.flatnonzero(new)
+    count = np.diff(np.r_[starts, len(x)])
+    places_x, places_y = x[copies[starts]], y[copies[starts]]
+    for q, e in _pairs_within(elements, reach, places_x, places_y, max(1, batch // max(1, int(count.max(initial=1))))):
         k = count[q]
-        p = copies[np.repeat(first[q], k) + (np.arange(k.sum()) - np.repeat(np.cumsum(k) - k, k))]
+        p = copies[np.repeat(starts[q], k) + (np.arange(k.sum()) - np.repeat(np.cumsum(k) - k, k))]
         yield p, np.repeat(e, k)
 
 
