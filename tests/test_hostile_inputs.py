@@ -100,9 +100,9 @@ def test_the_size_limit_and_the_memory_limit_are_read_and_checked(site):
     path = edit(site, "grid_threshold_mm = 0.5", "grid_threshold_mm = 0.5\nmemory_limit_mb = 2048")
     assert load_project(path).output.memory_limit_mb == 2048.0
     fails(edit(site, "memory_limit_mb = 2048", "memory_limit_mb = 0"),
-          r"\[output\]: memory_limit_mb must be more than 0; got 0")
+          r"\[output\]: memory_limit_mb must be more than 0 and at most 10000000; got 0")
     fails(edit(site, "memory_limit_mb = 0", "input_size_limit_mb = -1"),
-          r"\[output\]: input_size_limit_mb must be more than 0; got -1")
+          r"\[output\]: input_size_limit_mb must be more than 0 and at most 10000000; got -1")
 
 
 def test_input_files_lists_every_file_read_once_in_order(site):
@@ -415,3 +415,9 @@ def test_a_space_may_stand_for_the_t_between_date_and_time():
     from settle.inputs.readings import parse_date
 
     assert parse_date("2024-03-01 08:30") == parse_date("2024-03-01T08:30")
+
+
+@pytest.mark.parametrize("key", ["memory_limit_mb", "input_size_limit_mb"])
+def test_a_limit_too_large_to_limit_anything_is_refused(site, key):
+    fails(edit(site, "[output]", f"[output]\n{key} = 1e308"),
+          rf"\[output\]: {key} must be more than 0 and at most 10000000; got 1e\+308")

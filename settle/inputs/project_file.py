@@ -60,10 +60,10 @@ the project's vertical datum, up positive)
     contour_levels_mm   list of numbers more than 0, strictly increasing, at least one, required.
     grid_threshold_mm   number more than 0, default 0.1: the grid keeps nodes whose settlement reaches this.
     precision_mm        number more than 0 and less than grid_threshold_mm, default 0.001.
-    input_size_limit_mb number more than 0, default 512: the largest input file read [MB]; every file the project
-                        names (a shapefile with its .shx, .dbf, .prj, .cpg) must be no larger.
-    memory_limit_mb     number more than 0, optional: the largest memory a run may plan to use [MB]; default: half
-                        of this machine's available memory.
+    input_size_limit_mb number more than 0 and at most 10 000 000, default 512: the largest input file read [MB];
+                        every file the project names (a shapefile with its .shx, .dbf, .prj, .cpg) must be no larger.
+    memory_limit_mb     number more than 0 and at most 10 000 000, optional: the largest memory a run may plan to use
+                        [MB]; default: half of this machine's available memory.
 
 [construction]          optional: the construction envelope (settle.procedure.envelope).
     sequence            list of drive names in driving order, each drive once; default: the order of [[drives]].
@@ -283,13 +283,17 @@ class _Files:
                 self.read.append(resolved)
 
 
+#: The largest input size or memory limit a project may set (10 TB): beyond it a limit would limit nothing. [MB]
+MAX_LIMIT_MB = 1e7
+
+
 def _size_limit(doc: dict, file: str) -> float:
     """[output] input_size_limit_mb, read before any other file is. [MB]"""
     table = doc.get("output")
     if not isinstance(table, dict):
         return DEFAULT_INPUT_SIZE_LIMIT_MB
     return _number(table, "input_size_limit_mb", f"{file} [output]", required=False,
-                   default=DEFAULT_INPUT_SIZE_LIMIT_MB, gt=0.0)
+                   default=DEFAULT_INPUT_SIZE_LIMIT_MB, gt=0.0, le=MAX_LIMIT_MB)
 
 
 def _named(table: dict, where: str) -> str:
@@ -578,7 +582,8 @@ def _output(table: dict, where: str, size_limit_mb: float) -> Output:
     return Output(grid_spacing_m=spacing, contour_levels_mm=levels, grid_threshold_mm=threshold,
                   precision_mm=precision, settlement_geotiff=geotiff, sections_chainage_m=sections,
                   input_size_limit_mb=size_limit_mb,
-                  memory_limit_mb=_number(table, "memory_limit_mb", where, required=False, gt=0.0))
+                  memory_limit_mb=_number(table, "memory_limit_mb", where, required=False, gt=0.0,
+                                                 le=MAX_LIMIT_MB))
 
 
 def _levels(table: dict, key: str, where: str) -> tuple[float, ...]:
