@@ -35,7 +35,6 @@ from __future__ import annotations
 import datetime as dt
 import inspect
 import math
-import json
 import os
 import re
 import tempfile
@@ -163,11 +162,9 @@ def read_outputs(out_dir, stem: str) -> RunOutputs:
 def run_date_of(folder) -> dt.date | None:
     """The run date the run was given (`settle run --date`), as its run.json records it; None when it was given none
     (or the folder has no run.json)."""
-    try:
-        manifest = json.loads((Path(folder) / "run.json").read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, ValueError):
-        return None
-    day = manifest.get("run_date") if isinstance(manifest, dict) else None
+    from .run_set import read_manifest
+
+    day = (read_manifest(folder) or {}).get("run_date")
     try:
         return dt.date.fromisoformat(day) if isinstance(day, str) else None
     except ValueError:
