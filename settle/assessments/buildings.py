@@ -153,8 +153,7 @@ def profile_parts(wall: np.ndarray, s: np.ndarray, settlement: np.ndarray, min_p
     d2[1:-1] = settlement[:-2] - 2.0 * settlement[1:-1] + settlement[2:]
     interior = np.flatnonzero(~wall_first & ~wall_last)
     g = dense[interior]
-    scale = np.zeros(len(wall_id))
-    np.maximum.at(scale, dense, np.abs(settlement))
+    scale = np.maximum.reduceat(np.abs(settlement), np.flatnonzero(wall_first)) if n else np.zeros(0)
     curv = d2[interior]
     sign = np.where(np.abs(curv) > CURVATURE_NOISE * scale[g], np.sign(curv), 0.0)
     sign = _segment_fill(sign, g)
@@ -194,11 +193,12 @@ def part_deflection(first: np.ndarray, last: np.ndarray, s: np.ndarray, settleme
     """
     count = last - first + 1
     part = np.repeat(np.arange(len(first)), count)
-    idx = first[part] + np.arange(part.size) - np.repeat(np.cumsum(count) - count, count)
-    a, b = first[part], last[part]
-    chord = settlement[a] + (settlement[b] - settlement[a]) * (s[idx] - s[a]) / (s[b] - s[a])
-    dev = settlement[idx] - chord
     starts = np.cumsum(count) - count
+    idx = np.repeat(first - starts, count) + np.arange(part.size)
+    s_a, settlement_a = s[first], settlement[first]  # per part, then spread over its samples
+    rise, run = settlement[last] - settlement_a, s[last] - s_a
+    chord = settlement_a[part] + rise[part] * (s[idx] - s_a[part]) / run[part]
+    dev = settlement[idx] - chord
     high = np.maximum.reduceat(dev, starts)
     low = np.minimum.reduceat(dev, starts)
     return np.where(high >= -low, high, low)
@@ -300,10 +300,9 @@ def _batches(buildings: Buildings, walls: Walls, interior_spacing_m: float):
     return [(a, b, wall_range[a], wall_range[b]) for a, b in zip(edges[:-1], edges[1:])]
 
 
-def _evaluate(movements, x, y, depth, owner=None) -> dict[str, np.ndarray]:
-    """Settlement [mm], tilt [-] and horizontal displacement ux, uy [mm] at the points (`owner`, the building of each
-    point, is passed on to a movements callable that wants it)."""
-    m: Movements = movements(x, y, depth) if owner is None else movements(x, y, depth, owner)
+def _evaluate(movements, x, y, depth) -> dict[str, np.ndarray]:
+    """Settlement [mm], tilt [-] and horizontal displacement ux, uy [mm] at the points."""
+    m: Movements = movements(x, y, depth)
     return {"settlement_mm": np.asarray(m.settlement_mm, dtype=float), "tilt": np.hypot(m.slope_x, m.slope_y),
             "ux_mm": np.asarray(m.ux_mm, dtype=float), "uy_mm": np.asarray(m.uy_mm, dtype=float)}
 
@@ -357,7 +356,7 @@ def footprint_maxima(buildings: Buildings, movements: Callable[..., Movements],
 
 
 def assess_buildings(buildings: Buildings, movements: Callable[..., Movements],
-                     options: AssessmentOptions | None = None, by_building: bool = False) -> BuildingResults:
+                     options: AssessmentOptions | None = None) -> BuildingResults:
     """Stage 1 screening and stage 2 deep-beam damage categories of every building.
 
     Parameters
@@ -367,8 +366,6 @@ def assess_buildings(buildings: Buildings, movements: Callable[..., Movements],
                                  movements of every drive at the construction stage of the run, at points at a
                                  depth below the ground surface. NaN where undefined (below a tunnel crown).
     options : AssessmentOptions
-    by_building : bool           Call movements(x_m, y_m, depth_m, building) with the index of each point's building,
-                                 for a field that differs from building to building (construction stages).
 
     Returns
     -------
@@ -385,15 +382,15 @@ def assess_buildings(buildings: Buildings, movements: Callable[..., Movements],
     found = []
     for first, end, w_first, w_end in _batches(buildings, walls, options.interior_spacing_m):
         samples = _Samples.of(buildings, walls, first, end, w_first, w_end, options.interior_spacing_m)
-        field_ = _evaluate(movements, samples.x, samples.y, buildings.foundation_depth_m[samples.owner],
-                           samples.owner if by_building else None)
+        field_ = _evaluate(movements, samples.x, samples.y, buildings.foundation_depth_m[samples.owner])
         # stage 1
         s, t, u = _footprint_maxima(samples.owner - first, field_, end - first)
         max_settlement[first:end], max_tilt[first:end], undefined[first:end] = s, t, u
         screened[first:end] = rankin_screening(t, s, options.screening_slope_limit,
                                                options.screening_settlement_limit_mm) & ~u
         # stage 2
-        found.append(_assess_parts(samples, field_, walls, ~screened & ~undefined, buildings, factors, options))
+        found.append(_assess_parts(samples, field_, walls, ~screened & ~undefined, buildings.height_m,
+                                   buildings.e_over_g, factors, options))
     parts = _concatenate(found)
     wall_part, worst_wall = _governing(parts, walls, ~screened & ~undefined)
     return _results(buildings, walls, parts, wall_part, worst_wall, max_settlement, max_tilt, screened, undefined,
@@ -456,17 +453,19 @@ def _results(buildings, walls, parts, wall_part, worst_wall, max_settlement, max
     )
 
 
-def _assess_parts(samples: _Samples, field_: dict, walls: Walls, assessed: np.ndarray, buildings: Buildings,
-                  factors, options: AssessmentOptions) -> PartResults:
+def _assess_parts(samples: _Samples, field_: dict, walls: Walls, assessed: np.ndarray, height_m: np.ndarray,
+                  e_over_g: np.ndarray, factors, options: AssessmentOptions) -> PartResults:
     """Stage 2: the sagging and hogging parts of the walls of the assessed buildings, with their deflection ratio,
-    average horizontal strain, beam strains and category."""
+    average horizontal strain, beam strains and category. `height_m`, `e_over_g` and `factors` are per building
+    (as indexed by walls.building)."""
     n_wall_samples = len(samples.wall)
     keep = assessed[walls.building][samples.wall]
-    w_of = samples.wall[keep]
-    s_along = samples.along_m[keep]
-    prof = field_["settlement_mm"][:n_wall_samples][keep]
-    t = walls.direction[w_of]
-    along = field_["ux_mm"][:n_wall_samples][keep] * t[:, 0] + field_["uy_mm"][:n_wall_samples][keep] * t[:, 1]
+    index = None if keep.all() else np.flatnonzero(keep)  # of the wall samples of assessed buildings
+
+    def kept(values):
+        return values[:n_wall_samples] if index is None else values[index]
+
+    w_of, s_along, prof = kept(samples.wall), kept(samples.along_m), kept(field_["settlement_mm"])
     if len(w_of) == 0:
         return _no_parts()
     p_wall, first, last = profile_parts(w_of, s_along, prof)
@@ -474,14 +473,17 @@ def _assess_parts(samples: _Samples, field_: dict, walls: Walls, assessed: np.nd
     delta_mm = part_deflection(first, last, s_along, prof)
     sagging = delta_mm > 0
     dr_gf = np.abs(delta_mm) * 1e-3 / length
-    eh_gf = (along[last] - along[first]) * 1e-3 / length
+    t = walls.direction[p_wall]
+    ends = (first, last) if index is None else (index[first], index[last])
+    along = [field_["ux_mm"][k] * t[:, 0] + field_["uy_mm"][k] * t[:, 1] for k in ends]  # displacement along [mm]
+    eh_gf = (along[1] - along[0]) * 1e-3 / length
     b = walls.building[p_wall]
     if factors is not None:
         dr, eh = apply_modification_factors(dr_gf, eh_gf, sagging, *(factors[k][b] for k in MODIFICATION_ATTRIBUTES))
     else:
         dr, eh = dr_gf, eh_gf
-    ratio = length / buildings.height_m[b]
-    beam = deep_beam_strains(dr, eh, ratio, buildings.e_over_g[b], ~sagging, options.poisson_ratio)
+    ratio = length / height_m[b]
+    beam = deep_beam_strains(dr, eh, ratio, e_over_g[b], ~sagging, options.poisson_ratio)
     pct = 100.0
     return PartResults(
         wall=p_wall, from_m=s_along[first], to_m=s_along[last], sagging=sagging, length_to_height=ratio,

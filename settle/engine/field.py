@@ -15,38 +15,46 @@ import numpy as np
 from ..inputs.ground import GroundModel
 from .elements import Elements
 from .movements import Movements, SettlementTiles
-from .troughs import straight_tunnel_movements, subsurface_width_ratio
+from .troughs import straight_tunnel_movements, straight_tunnel_movements_to_faces, subsurface_width_ratio
 
 FIELDS = ("settlement", "ux", "uy", "exx", "eyy", "exy", "sx", "sy")
 TILE_SIZE = 128
 PAIRS_PER_BATCH = 400_000
 
 
-def _element_movements(elements: Elements, e: np.ndarray, x, y, trough_width, axis_depth, length=None) -> dict:
+def strains_in(fields) -> bool:
+    return any(f in fields for f in ("exx", "eyy", "exy"))
+
+
+def _element_movements(elements: Elements, e: np.ndarray, x, y, trough_width, axis_depth, length=None,
+                       fields=FIELDS) -> dict:
     """Movements of elements `e` at points (x, y), in project axes, each element `length` long from its start (its
-    plan length when None). Metres and strains as fractions."""
+    plan length when None): the `fields` asked for (names of FIELDS). Metres and strains as fractions."""
     c = elements.direction[e]
     dx = x - elements.start_xy[e, 0]
     dy = y - elements.start_xy[e, 1]
     cx, cy = c[:, 0], c[:, 1]
     u = dx * cx + dy * cy
     v = -dx * cy + dy * cx
+    strains = strains_in(fields)
     m = straight_tunnel_movements(
         u, v, elements.plan_length_m[e] if length is None else length, elements.volume_per_m[e], trough_width,
-        axis_depth
+        axis_depth, strains=strains
     )
-    cxx, cyy, cxy = cx * cx, cy * cy, cx * cy
-    euu, evv, euv = m["strain_uu"], m["strain_vv"], m["strain_uv"]
-    return {
-        "settlement": m["settlement"],
-        "ux": m["du"] * cx - m["dv"] * cy,
-        "uy": m["du"] * cy + m["dv"] * cx,
-        "exx": cxx * euu - 2.0 * cxy * euv + cyy * evv,
-        "eyy": cyy * euu + 2.0 * cxy * euv + cxx * evv,
-        "exy": cxy * (euu - evv) + (cxx - cyy) * euv,
-        "sx": m["slope_u"] * cx - m["slope_v"] * cy,
-        "sy": m["slope_u"] * cy + m["slope_v"] * cx,
-    }
+    out = {"settlement": m["settlement"]}
+    if "ux" in fields or "uy" in fields:
+        out["ux"] = m["du"] * cx - m["dv"] * cy
+        out["uy"] = m["du"] * cy + m["dv"] * cx
+    if "sx" in fields or "sy" in fields:
+        out["sx"] = m["slope_u"] * cx - m["slope_v"] * cy
+        out["sy"] = m["slope_u"] * cy + m["slope_v"] * cx
+    if strains:
+        cxx, cyy, cxy = cx * cx, cy * cy, cx * cy
+        euu, evv, euv = m["strain_uu"], m["strain_vv"], m["strain_uv"]
+        out["exx"] = cxx * euu - 2.0 * cxy * euv + cyy * evv
+        out["eyy"] = cyy * euu + 2.0 * cxy * euv + cxx * evv
+        out["exy"] = cxy * (euu - evv) + (cxx - cyy) * euv
+    return out
 
 
 def _to_movements(x, y, depth, sums: dict) -> Movements:
@@ -148,6 +156,120 @@ def movements_at_points(elements: Elements, ground: GroundModel, x, y, depth, pr
     for f in FIELDS:
         sums[f][below_crown] = np.nan
     return _to_movements(x, y, depth, sums)
+
+
+#: The fields the building assessment reads (settlement, horizontal displacements and slopes).
+BUILDING_FIELDS = ("settlement", "ux", "uy", "sx", "sy")
+
+
+def movements_at_stages(elements: Elements, ground: GroundModel, x, y, depth, faces_m, first, count,
+                        face_drive: int, precision_m: float = 1e-6, fields=FIELDS, rows=None) -> Movements:
+    """Movements at places over runs of construction stages of drive `face_drive`, in one evaluation.
+
+    Place q is wanted at the stages first[q], ..., first[q] + count[q] - 1 of the drive, whose faces are at the
+    chainages `faces_m` [m]. Row start[q] + j of the result (start = cumsum(count) - count: place by place, stage
+    by stage), or rows[start[q] + j] when `rows` (a permutation) is given, holds place q at stage first[q] + j, as
+    `movements_at_points` with that face would give it: the elements of `face_drive` cut at the face, the others
+    whole. The elements near a place are found once for all its stages; the other drives' elements are evaluated
+    once per place and added to each stage, and an element of the drive is evaluated once per place for all the
+    stages whose face lies beyond its end. Fields not in `fields` (names of FIELDS) are NaN, and so are the
+    positions of the rows (x_m, y_m, depth_m) when `rows` is given.
+    """
+    x, y, depth = (np.asarray(a, dtype=float) for a in (x, y, depth))
+    faces_m = np.asarray(faces_m, dtype=float)
+    first, count = np.asarray(first, dtype=np.int64), np.asarray(count, dtype=np.int64)
+    n, n_rows = len(x), int(count.sum())
+    start = np.cumsum(count) - count
+    layout = np.arange(n_rows) if rows is None else np.asarray(rows, dtype=np.int64)
+    whole = {f: np.zeros(n) for f in fields}  # the other drives, per place
+    sums = {f: np.zeros(n_rows) for f in fields}  # the drive, per place and stage
+    place_below, row_below = np.zeros(n, dtype=bool), np.zeros(n_rows, dtype=bool)
+    reach = elements.reach_radius_m(precision_m)
+    batch = max(1, 2 * PAIRS_PER_BATCH // max(1, int(count.max(initial=1))))
+    others = False
+    for q, e in _pairs_within(elements, reach, x, y, batch):
+        q, e = q[count[q] > 0], e[count[q] > 0]
+        own = elements.drive[e] == face_drive
+        if not own.all():
+            others = True
+            _add_whole(elements, ground, q[~own], e[~own], x, y, depth, whole, place_below, n)
+        _add_stages(elements, ground, q[own], e[own], x, y, depth, faces_m, first, count, start, layout, sums,
+                    row_below)
+    place_of_row = np.empty(n_rows, dtype=np.int64)
+    place_of_row[layout] = np.repeat(np.arange(n), count)
+    if others:
+        row_below |= place_below[place_of_row]
+        for f in fields:
+            sums[f] += whole[f][place_of_row]
+    absent = np.broadcast_to(np.nan, n_rows)
+    scale = {"settlement": 1e3, "ux": 1e3, "uy": 1e3, "exx": 1e6, "eyy": 1e6, "exy": 1e6, "sx": 1.0, "sy": 1.0}
+    for f in fields:
+        sums[f] *= scale[f]
+        sums[f][row_below] = np.nan
+    out = {f: sums.get(f, absent) for f in FIELDS}
+    where = (x[place_of_row], y[place_of_row], depth[place_of_row]) if rows is None else (absent,) * 3
+    return Movements(*where, out["settlement"], out["ux"], out["uy"], out["exx"], out["eyy"], out["exy"], out["sx"],
+                     out["sy"])
+
+
+def _add_whole(elements, ground, q, e, x, y, depth, sums, below_crown, n):
+    """Add the movements of whole elements `e` at places `q` to `sums` (per place)."""
+    deep, i, zr = _at_depth(elements, ground, e, depth[q])
+    below_crown[q[deep]] = True
+    mov = _element_movements(elements, e, x[q], y[q], i, zr, fields=tuple(sums))
+    for f in sums:
+        sums[f] += np.bincount(q, weights=mov[f], minlength=n)
+
+
+def _add_stages(elements, ground, q, e, x, y, depth, faces_m, first, count, start, layout, sums, below_crown):
+    """Add the movements of the elements `e` of the drive at places `q`, at each of the place's stages, to `sums`
+    (per row, placed by `layout`): cut at the face where it lies within the element, whole (evaluated once) where
+    it lies beyond."""
+    k = count[q]
+    pair = np.repeat(np.arange(len(q)), k)
+    j = np.arange(pair.size) - np.repeat(np.cumsum(k) - k, k)
+    row = layout[start[q][pair] + j]
+    face = faces_m[first[q][pair] + j]
+    span = elements.chainage_to_m[e] - elements.chainage_from_m[e]
+    share = np.clip((face - elements.chainage_from_m[e][pair]) / np.maximum(span, 1e-12)[pair], 0.0, 1.0)
+    deep, i, zr = _at_depth(elements, ground, e, depth[q])
+    n_rows = len(below_crown)
+    fields = tuple(sums)
+    # the face beyond the element: one evaluation per place, added to each such stage
+    full = share >= 1.0
+    if full.any():
+        once = np.bincount(pair[full], minlength=len(q)) > 0
+        mov = _element_movements(elements, e[once], x[q[once]], y[q[once]], i[once], zr[once], fields=fields)
+        slot = np.cumsum(once) - 1
+        below_crown[row[full & deep[pair]]] = True
+        for f in fields:
+            sums[f] += np.bincount(row[full], weights=mov[f][slot[pair[full]]], minlength=n_rows)
+    # the face within the element: the length excavated up to it
+    part = (share > 0.0) & ~full
+    p = pair[part]
+    below_crown[row[part & deep[pair]]] = True
+    if strains_in(fields):
+        mov = _element_movements(elements, e[p], x[q[p]], y[q[p]], i[p], zr[p],
+                                 length=elements.plan_length_m[e[p]] * share[part], fields=fields)
+    else:
+        mov = _element_movements_to_faces(elements, e, x[q], y[q], i, zr, p,
+                                          elements.plan_length_m[e[p]] * share[part])
+    for f in fields:
+        sums[f] += np.bincount(row[part], weights=mov[f], minlength=n_rows)
+
+
+def _element_movements_to_faces(elements: Elements, e, x, y, trough_width, axis_depth, pair, length) -> dict:
+    """Settlement, horizontal displacement and slope (`_element_movements`) of elements `e` at points (x, y), each
+    pair at several excavated lengths: row r is pair `pair[r]` with its element `length[r]` long."""
+    c = elements.direction[e]
+    dx = x - elements.start_xy[e, 0]
+    dy = y - elements.start_xy[e, 1]
+    cx, cy = c[:, 0], c[:, 1]
+    m = straight_tunnel_movements_to_faces(dx * cx + dy * cy, -dx * cy + dy * cx, elements.volume_per_m[e],
+                                           trough_width, axis_depth, pair, length)
+    cx, cy = cx[pair], cy[pair]
+    return {"settlement": m["settlement"], "ux": m["du"] * cx - m["dv"] * cy, "uy": m["du"] * cy + m["dv"] * cx,
+            "sx": m["slope_u"] * cx - m["slope_v"] * cy, "sy": m["slope_u"] * cy + m["slope_v"] * cx}
 
 
 def _at_depth(elements: Elements, ground: GroundModel, e: np.ndarray, depth: np.ndarray):

@@ -218,7 +218,7 @@ def subsurface_width_ratio(depth, axis_depth, cohesive_fraction):
     )
 
 
-def straight_tunnel_movements(u, v, length, volume_per_m, trough_width, axis_depth):
+def straight_tunnel_movements(u, v, length, volume_per_m, trough_width, axis_depth, strains=True):
     """Ground movements over a straight, level length of tunnel excavated from u = 0 to u = length.
 
     The closed form of Attewell & Woodman (1982) / Attewell, Yeates & Selby (1986) for a finite length of tunnel:
@@ -241,13 +241,15 @@ def straight_tunnel_movements(u, v, length, volume_per_m, trough_width, axis_dep
     volume_per_m : array_like  Volume of the trough per metre of tunnel, Vs = VL pi D^2/4. [m^3/m]
     trough_width : array_like  i at the depth of the point. [m]
     axis_depth : array_like    zr = z0 - z, vertical distance from the point to the axis. [m]
+    strains : bool             False leaves the strains out (for callers that need only settlement, displacement
+                               and slope).
 
     Returns
     -------
     dict of ndarray, all at the points:
         settlement [m] (down positive), du, dv [m] (horizontal displacement along u and v),
         slope_u, slope_v [-] (gradient of settlement), strain_uu, strain_vv, strain_uv [-] (tensile positive,
-        tensor components).
+        tensor components; only with `strains`).
 
     References
     ----------
@@ -270,13 +272,60 @@ def straight_tunnel_movements(u, v, length, volume_per_m, trough_width, axis_dep
 
     settlement = a * g * p
     du = b * g * (ea - eb)
-    return {
+    out = {
         "settlement": settlement,
         "du": du,
         "dv": -(v / zr) * settlement,
         "slope_u": a * g * (ea - eb) / (SQRT_2PI * i),
         "slope_v": -(v / (i * i)) * settlement,
-        "strain_uu": b * g * (ub * eb - u * ea) / (i * i),
-        "strain_vv": -(settlement / zr) * (1.0 - v * v / (i * i)),
-        "strain_uv": -(v / (i * i)) * du,
+    }
+    if strains:
+        out["strain_uu"] = b * g * (ub * eb - u * ea) / (i * i)
+        out["strain_vv"] = -(settlement / zr) * (1.0 - v * v / (i * i))
+        out["strain_uv"] = -(v / (i * i)) * du
+    return out
+
+
+def straight_tunnel_movements_to_faces(u, v, volume_per_m, trough_width, axis_depth, pair, length):
+    """`straight_tunnel_movements` (no strains) of one length of tunnel at several excavated lengths: point `pair[r]`
+    with the tunnel excavated from u = 0 to u = length[r].
+
+    The closed form is the difference of the terms of its two ends: the launch end's (at u) is the same for every
+    excavated length and is evaluated once per point, the face's (at u - L) once per length. The same equations, in
+    another order; results agree with `straight_tunnel_movements` to rounding.
+
+    Parameters
+    ----------
+    u, v, volume_per_m, trough_width, axis_depth : array_like, one value per point, as `straight_tunnel_movements`.
+    pair : (r,) int              The point of each row.
+    length : (r,) array_like     Length excavated in each row, L. [m]
+
+    Returns
+    -------
+    dict of ndarray, per row: settlement, du, dv [m], slope_u, slope_v [-].
+
+    References
+    ----------
+    [AW82]; [AYS86]; [ORN82]; methods.md sections 2 and 3.
+    """
+    u = np.asarray(u, dtype=float)
+    v = np.asarray(v, dtype=float)
+    i = np.asarray(trough_width, dtype=float)
+    zr = np.asarray(axis_depth, dtype=float)
+    vs = np.asarray(volume_per_m, dtype=float)
+    two_i2 = 2.0 * i * i
+    g = np.exp(-(v * v) / two_i2)
+    ag = vs / (SQRT_2PI * i) * g
+    bg = vs / (2.0 * np.pi * zr) * g
+    launch_p, launch_e = ndtr(u / i), np.exp(-(u * u) / two_i2)
+    ub = u[pair] - np.asarray(length, dtype=float)
+    p = launch_p[pair] - ndtr(ub / i[pair])
+    e = launch_e[pair] - np.exp(-(ub * ub) / two_i2[pair])
+    settlement = ag[pair] * p
+    return {
+        "settlement": settlement,
+        "du": bg[pair] * e,
+        "dv": -(v / zr)[pair] * settlement,
+        "slope_u": (ag / (SQRT_2PI * i))[pair] * e,
+        "slope_v": -(v / (i * i))[pair] * settlement,
     }

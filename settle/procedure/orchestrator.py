@@ -111,7 +111,10 @@ class Assessment:
         self.progress("envelope", 0.0)
         sequence = Sequence(p, self.ground)
         if p.buildings is not None:
-            self._building_envelope = building_envelope(sequence, p.buildings, p.building_options)
+            # With no face given the run's stage is completion: its building results serve the envelope as they are.
+            at_completion = all(d.face_chainage_m is None for d in p.drives)
+            self._building_envelope = building_envelope(sequence, p.buildings, p.building_options,
+                                                        completion=self._buildings if at_completion else None)
         self.progress("envelope", 0.5)
         if p.utilities is not None:
             self._utility_envelope = utility_envelope(sequence, p.utilities, p.utility_options)
