@@ -133,3 +133,6 @@ class Project:
     # The construction sequence of the envelope ([construction]): settle.inputs.construction_settings.Construction;
     # None = the documented defaults.
     construction: object | None = None
+    # Document control of the report ([report]): settle.inputs.report_settings.DocumentControl (all defaults when
+    # the file has no [report]).
+    report: object | None = None

@@ -70,6 +70,10 @@ the project's vertical datum, up positive)
     stage_step_m        number more than 0 and at most 50: the face step between two stages of the envelope;
                         default (our choice): a quarter of the drive's smallest trough width i = K z0.
 
+[report]                optional: document control of the report (settle.inputs.report_settings): document_number,
+                        revision, title, client, prepared_by, checked_by, approved_by, paper ("A4" | "A3", default
+                        "A4"), and [[report.revisions]] with revision, date and description each, oldest first.
+
 Example
 -------
     [project]
@@ -111,6 +115,7 @@ import pyproj
 
 from ..errors import InputError
 from .construction_settings import CONSTRUCTION_KEYS, MAX_STAGE_STEP_M, Construction, check_sequence
+from .report_settings import read_document_control
 from .building_settings import STIFFNESS_METHODS, AssessmentOptions
 from .footprints import DEFAULT_E_OVER_G, MODIFICATION_ATTRIBUTES, BuildingDefaults, read_buildings
 from .utility_lines import VERTICALS as UTILITY_VERTICALS
@@ -125,7 +130,7 @@ from .tables import (COORDINATE_RANGE, DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE,
                      read_surface_points, shapefile_sidecars, shown)
 
 TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings",
-            "monitoring", "construction")
+            "monitoring", "construction", "report")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
@@ -209,7 +214,9 @@ def load_project(path) -> Project:
     return Project(name=title, crs=crs, ground=ground, drives=drives, output=output, points=points, path=path,
                    warnings=tuple(warnings), strengths=strengths, rivers=rivers, face=face, utilities=utilities,
                    utility_options=utility_options, buildings=buildings, building_options=building_options,
-                   monitoring=monitoring, input_files=tuple(files.read), construction=_construction(doc, name, drives))
+                   monitoring=monitoring, input_files=tuple(files.read), construction=_construction(doc, name, drives),
+                   report=read_document_control(_table(doc, "report", name, required=False), f"{name} [report]",
+                                                _check_keys))
 
 
 def _construction(doc: dict, file: str, drives) -> Construction | None:
