@@ -33,7 +33,6 @@ the crown [kPa], chainage along the 3-D axis [m].
 from __future__ import annotations
 
 import datetime as dt
-import inspect
 import math
 import os
 import re
@@ -54,33 +53,26 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from settle.errors import InputError  # noqa: E402
 
 from . import figures  # noqa: E402
-from .png import glyph_check, note_missing_glyphs  # noqa: E402
+from .png import glyph_check  # noqa: E402
+from .report_monitoring import monitoring_blocks  # noqa: E402
+from .report_schedules import schedule_blocks  # noqa: E402
+from .report_layout import MONO_CHARS, Block, PageMarks, Renderer, atomic_pdf, core_fonts_suffice  # noqa: E402
+from .report_tables import num as _num  # noqa: E402
+from .report_tables import one_in as _one_in  # noqa: E402
+from .report_tables import records as _records  # noqa: E402
+from .report_tables import table_lines  # noqa: E402, F401  (public here too)
 
-SECTIONS = ("1 Inputs", "2 Methods and references", "3 Results", "4 Assumptions, limits and cautions")
+SECTIONS = ("1 Inputs", "2 Methods and references", "3 Results", "4 Assumptions, limits and cautions", "5 References")
+APPENDICES = ("Appendix A Schedules",)
+TITLE_CHARS = 52  # characters per line of the 18 pt title on the A4 text width
 BUILDING_REPORT_CATEGORY = 2  # buildings in this damage category and above are tabled
 UTILITY_REPORT_STATUSES = ("near limit", "exceeds")  # pipes with these statuses are tabled
 FACE_REPORT_STATUSES = ("narrow", "closed")  # face stations with these statuses are tabled
 FIGURE_DPI = 130
 
-A4 = (8.27, 11.69)  # [in]
-MARGIN_IN = 0.7
-TEXT_PT, MONO_PT = 9.0, 7.0
-WRAP_CHARS = 100  # characters per line of 9 pt text on the A4 text width
-MONO_CHARS = 116  # characters per line of 7 pt Courier on the A4 text width
 
 
 # ----------------------------------------------------------------------------------------------- the document
-@dataclass
-class Block:
-    """One piece of the report: kind is "title", "heading", "subheading", "text", "mono" (fixed-width lines),
-    "image" (a PNG with its caption) or "break" (a new page)."""
-
-    kind: str
-    text: str = ""
-    lines: list[str] = field(default_factory=list)
-    image: Path | None = None
-
-
 @dataclass
 class RunOutputs:
     """What a finished run left in its folder, read once."""
@@ -154,8 +146,8 @@ def read_outputs(out_dir, stem: str) -> RunOutputs:
     layers = figures.layer_names(gpkg)
     if "route" not in layers:
         raise InputError(f"{gpkg}: has no route layer; is it the output of `settle run`?")
-    frames = {name: figures.read_layer(gpkg, name) for name in ("route", "buildings", "utilities", "face_stations")
-              if name in layers}
+    frames = {name: figures.read_layer(gpkg, name) for name in ("route", "buildings", "utilities", "face_stations",
+                                                                "readings") if name in layers}
     return RunOutputs(out, stem, gpkg, summary, layers, frames)
 
 
@@ -210,66 +202,6 @@ def utilities_to_report(utilities) -> pd.DataFrame:
 def face_stations_to_report(stations) -> pd.DataFrame:
     """The face stations whose window is narrow or closed, in the order of the layer (drive, then chainage)."""
     return stations[stations["status"].isin(FACE_REPORT_STATUSES)]
-
-
-# --------------------------------------------------------------------------------------------- formatting
-def _num(value, fmt: str) -> str:
-    """A number in the format, "-" where there is none."""
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        return "-" if value is None or value is pd.NA else str(value)
-    return "-" if not np.isfinite(v) else format(v, fmt)
-
-
-def table_lines(columns: list[tuple[str, int, object]], rows: list[dict]) -> list[str]:
-    """Fixed-width table: columns are (title, width, how) where how is a format spec for numbers or None for text;
-    text wider than its column is cut with "...". Returns the header, a rule, then one line per row."""
-    def cell(value, width, how):
-        text = _num(value, how) if how else ("-" if value is None or value is pd.NA or
-                                               (isinstance(value, float) and np.isnan(value)) else str(value))
-        return text if len(text) <= width else text[:width - 3] + "..."
-
-    head = " ".join(f"{t:<{w}}" if not how else f"{t:>{w}}" for t, w, how in columns)
-    out = [head.rstrip(), "-" * len(head.rstrip())]
-    for r in rows:
-        out.append(" ".join(f"{cell(r.get(t), w, how):<{w}}" if not how else f"{cell(r.get(t), w, how):>{w}}"
-                            for t, w, how in columns).rstrip())
-    return out
-
-
-def _records(frame, mapping: dict) -> list[dict]:
-    """Rows of a frame as dicts keyed by table column titles: mapping is title -> field name (or a function)."""
-    out = []
-    for _, row in frame.iterrows():
-        out.append({title: (f(row) if callable(f) else row.get(f)) for title, f in mapping.items()})
-    return out
-
-
-def _one_in(value) -> str:
-    """A slope as "1/n"."""
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        return "-"
-    return "-" if not np.isfinite(v) or v <= 0 else f"1/{1.0 / v:,.0f}"
-
-
-def docstring_references(module) -> list[str]:
-    """The entries of the References section of a module's docstring, keys dropped, continuation lines joined."""
-    doc = inspect.getdoc(module) or ""
-    m = re.search(r"^References\n-{3,}\n", doc, re.M)
-    if not m:
-        return []
-    entries: list[str] = []
-    for line in doc[m.end():].splitlines():
-        if line.startswith("["):
-            entries.append(re.sub(r"^\[[^\]]+\]\s*", "", line).strip())
-        elif line.startswith(" ") and line.strip() and entries:
-            entries[-1] += " " + line.strip()
-        else:
-            break
-    return entries
 
 
 def _name(path, project_dir: Path | None) -> str:
@@ -356,28 +288,47 @@ def project_inputs(project) -> dict:
         "drives": drives, "rivers": rivers, "face": face, **tables,
         "output": {"grid_spacing_m": out.grid_spacing_m, "contour_levels_mm": list(out.contour_levels_mm),
                    "grid_threshold_mm": out.grid_threshold_mm, "precision_mm": out.precision_mm},
+        "report": project.report.as_dict() if getattr(project, "report", None) is not None else None,
     }
 
 
 # ---------------------------------------------------------------------------------------------- sections
-def _title_blocks(run: RunOutputs, date: dt.date, inputs: dict | None) -> list[Block]:
+def _title_blocks(run: RunOutputs, date: dt.date, inputs: dict | None, title: str) -> list[Block]:
+    """Page 1: the title block (project, client, document number, revision, run date, who prepared, checked and
+    approved it), the revision table, where the report comes from, the contents and the caution."""
     s = run.summary
     from settle.version import __version__
 
+    control = _control(inputs)
     outputs = s.get("outputs", {})
     files = [run.gpkg.name, "summary.json"] + [v for k, v in outputs.items() if k not in ("geopackage", "summary")
                                                and isinstance(v, str)]
     for k, v in outputs.items():
         if isinstance(v, list):
             files += [f"{len(v)} style files (.qml, .sld)"] if k == "styles" else [str(x) for x in v]
-    lines = [f"Run date: {date.isoformat() if date else 'not given (settle run --date YYYY-MM-DD dates a run)'}",
-             f"Project file: {inputs['project_file'] if inputs else 'not given to the report'}",
+    given = "not given"
+    block = [("Project", s.get("project", run.stem)), ("Client", control.get("client") or given),
+             ("Document number", control.get("document_number") or given),
+             ("Revision", control.get("revision") or given),
+             ("Run date", date.isoformat() if date else "not given (settle run --date YYYY-MM-DD dates a run)"),
+             ("Prepared by", control.get("prepared_by") or given), ("Checked by", control.get("checked_by") or given),
+             ("Approved by", control.get("approved_by") or given)]
+    b = [Block("title", line) for line in textwrap.wrap(title, TITLE_CHARS)]
+    b.append(Block("mono", lines=[f"{label:<16} {value}" for label, value in block]))
+    b.append(Block("subheading", "Revisions"))
+    revisions = control.get("revisions") or []
+    if revisions:
+        rows = [{"revision": r["revision"], "date": r["date"], "description": r["description"]} for r in revisions]
+        b.append(Block("mono", lines=table_lines([("revision", 10, None), ("date", 10, None),
+                                                  ("description", 90, None)], rows)))
+    else:
+        b.append(Block("text", "No revision history given ([[report.revisions]] in the project file)."))
+    lines = [f"Project file: {inputs['project_file'] if inputs else 'not given to the report'}",
              f"Coordinate reference system: {s.get('crs', '-')}",
              f"Outputs of the run: {', '.join(dict.fromkeys(files))}",
              f"Written by settle {__version__} from the outputs of the run; nothing was recomputed."]
-    return [Block("title", "Ground movement assessment"), Block("title", s.get("project", run.stem)),
-            *[Block("text", t) for t in lines],
-            Block("subheading", "Contents"), Block("mono", lines=list(SECTIONS)),
+    return [*b, Block("subheading", "Source"), *[Block("text", t) for t in lines],
+            Block("subheading", "Contents"), Block("mono", lines=list(SECTIONS) + list(APPENDICES)),
             Block("subheading", "Caution"),
             Block("text", s.get("caution", "")),
             Block("text", "Buildings in damage category 3 or above need a detailed assessment by a qualified engineer. "
@@ -485,47 +436,45 @@ def _settings_blocks(inputs: dict) -> list[Block]:
             lines.append(f"D{k} {r['key']}: {r['mode']} from {r['from_chainage_m']:g} to {r['to_chainage_m']:g} m")
     if inputs.get("face"):
         items = [f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in inputs["face"].items()]
-        lines.append("[face] as used (given, or the documented default): ")
+        lines.append("[face] as used (given in the project file, or assumed by default): ")
         lines += textwrap.wrap("; ".join(items), MONO_CHARS - 2, initial_indent="  ", subsequent_indent="  ")
     b.append(Block("mono", lines=lines))
     return b
 
 
-#: What each assessment does, in brief (the README and the docstrings of the modules named hold the detail), and
-#: the status of its formulas and values as those docstrings give it. Each names (the module whose docstring holds
-#: the references, the name the report prints for it; kept as the report has always printed it).
+#: What each assessment does, in brief, with the works it cites (written out in section 5,
+#: `report_references`), and the status of its relations and values in words for the report's reader.
 METHODS = {
     "greenfield": (
-        ("settle.engine.troughs", "settle.troughs"),
         "Greenfield ground movements. Transverse Gaussian trough (Peck 1969) with i = K z0 (O'Reilly & New 1982), K "
         "weighted by layer thickness; three-dimensional trough from point sinks integrated exactly over straight "
         "tunnel elements along the excavated length (Attewell & Woodman 1982; Attewell, Yeates & Selby 1986), which "
         "conserves the lost volume; settlement is half its full value over the launch shaft and the face. Subsurface "
         "troughs after Mair, Taylor & Bracegirdle (1993) in clay and Moh, Ju & Hwang (1996) in sand; horizontal "
         "movements toward the axis and their strains after O'Reilly & New (1982).",
-        "Some coefficients are marked in the engine's documentation as taken from memory of the sources."),
+        "Published relations. The subsurface trough widths are used as commonly quoted, not verified against the "
+        "original publications, and in mixed ground they are weighted by the share of clay between the point and "
+        "the axis (assumed; no published source: confirm for this site where subsurface values govern)."),
     "buildings": (
-        ("settle.assessments.building_damage", "settle.buildings"),
         "Building damage. Stage 1 screening on the greenfield settlement and slope over each footprint (Rankin 1988; "
         "Mair, Taylor & Burland 1996): below 10 mm and 1/500, negligible risk. Stage 2: each wall a weightless "
         "elastic deep beam following the greenfield profile (Burland & Wroth 1974; Burland 1995), split into "
         "sagging and hogging parts, bending and diagonal strains combined with the average horizontal strain, and "
         "the damage category from the limiting tensile strain (Boscardin & Cording 1989; Burland 1995). The "
         "building takes its worst wall.",
-        "The deep-beam equations and the category limits are confirmed in published sources; the stage 1 limits are "
-        "from memory of Rankin (1988). A strain above 0.3 % is reported as category 4 (severe to very severe): no "
-        "strain criterion separates categories 4 and 5."),
+        "The deep-beam equations and the category limits follow the published sources; the stage 1 limits (10 mm, "
+        "1/500) are used as commonly quoted from Rankin (1988), not verified against the original. A strain above "
+        "0.3 % is reported as category 4 (severe to very severe): no strain criterion separates categories 4 and 5."),
     "utilities": (
-        ("settle.assessments.utilities", "settle.pipelines"),
         "Buried utilities. Each pipe follows the ground at its own depth: bending strain from the curvature of the "
         "settlement along it, axial strain from the horizontal ground strain along its axis, their combination at "
         "the extreme fibre, and for jointed pipes the joint rotation and opening over one pipe length at the worst "
         "place (Attewell, Yeates & Selby 1986; Bracegirdle et al. 1996). Each demand is divided by its allowable "
         "value; the largest ratio is the utilisation.",
-        "The default allowable values per material are indicative: none is a published value (common practice or "
-        "from memory, as the utilities table of the README says). The asset owner's limits govern."),
+        "The default allowable values per material are assumed; no published source: confirm them for this site "
+        "with the asset owner, whose limits govern. Appendix A gives each pipe's allowable values and where each "
+        "comes from."),
     "face": (
-        ("settle.assessments.face_methods", "settle.face"),
         "Face support window. Minimum support at the crown: water pressure plus the wedge-and-silo support "
         "(Anagnostou & Kovari 1994) with partial factors, and in cohesive ground the support that holds the Broms & "
         "Bennermark (1967) stability ratio at its working level (3 by default; face movements stay small below "
@@ -533,32 +482,77 @@ METHODS = {
         "(load factor against a closed face's collapse ratio, Davis et al. 1980; Macklin 1999) is compared with "
         "the design volume loss. Maximum: the blow-out stress (total vertical stress at the crown) and the Delft "
         "cavity-expansion fracture pressure (Luger & Hergarden 1988) at the crown, from the initial stress with "
-        "K0, each over its factor. The window is the maximum less the minimum less twice the operating tolerance.",
-        "The engine's documentation marks the wedge-silo, Broms & Bennermark, blow-out and Delft formulas, the "
-        "working stability ratio, the collapse ratio of a closed face, Macklin's fit, Jaky's K0 and several default "
-        "factors as written from memory of the sources; check them against the originals."),
+        "K0 (Jaky 1944), each over its factor. The window is the maximum less the minimum less twice the operating "
+        "tolerance.",
+        "The wedge-and-silo, Broms & Bennermark, blow-out and Delft relations, the working stability ratio, the "
+        "collapse ratio of a closed face, Macklin's fit and Jaky's K0 are used as commonly quoted, not verified "
+        "against the original publications. Several default factors and the operating tolerances are assumed, with "
+        "no published source: confirm them for this site (the values used are listed in 1.4)."),
+    "monitoring": (
+        "Back-analysis of monitoring. The volume loss and trough width factor of each drive (or reach) are fitted to "
+        "the settlement readings with the same Gaussian troughs (Peck 1969) by robust least squares, following the "
+        "guidance of Jones & Clayton (2013) to report how well the fit is determined, not only its best values. "
+        "Readings of one point over many days are not independent: the standard errors are cluster-robust, with "
+        "the readings clustered by point (Cameron & Miller 2015; CR2 after Bell & McCaffrey 2002), and each "
+        "fitted value has a 95 % interval.",
+        "Published methods. The trigger levels are the project's; the fit describes the drive so far and is checked "
+        "against new readings as the drive proceeds."),
 }
 
 
-def _methods_blocks(run: RunOutputs) -> list[Block]:
-    import importlib
+def _methods_used(run: RunOutputs) -> set[str]:
+    """The methods of the run (keys of `report_references.CITED`): the assessments that ran, a building stiffness
+    correction or a pipe bending reduction when any was used, the back-analysis when readings were compared."""
+    used = {"greenfield"}
+    buildings = run.frames.get("buildings")
+    if buildings is not None:
+        used.add("buildings")
+        if "stiffness_correction" in buildings and (buildings["stiffness_correction"].fillna("none") != "none").any():
+            used.add("stiffness_correction")
+    utilities = run.frames.get("utilities")
+    if utilities is not None:
+        used.add("utilities")
+        factor = pd.to_numeric(utilities.get("bending_reduction_factor", pd.Series(dtype=float)), errors="coerce")
+        if (factor.fillna(1.0) != 1.0).any():
+            used.add("pipe_stiffness")
+    if "face_stations" in run.layers:
+        used.add("face")
+    if "readings" in run.layers:
+        used.add("monitoring")
+    return used
 
+
+def _methods_blocks(run: RunOutputs) -> list[Block]:
     b = [Block("break"), Block("heading", SECTIONS[1])]
-    ran = {"greenfield": True, "buildings": "buildings" in run.layers, "utilities": "utilities" in run.layers,
-           "face": "face_stations" in run.layers}
-    for n, (key, ((module, label), text, status)) in enumerate(METHODS.items(), start=1):
+    used = _methods_used(run)
+    for n, (key, (text, status)) in enumerate(METHODS.items(), start=1):
         title = text.split(".", 1)[0]
+        if key == "monitoring" and key not in used:
+            continue  # no readings: the run compared none
         b.append(Block("subheading", f"2.{n} {title}"))
-        if not ran[key]:
+        if key not in used:
             b.append(Block("text", f"{title}: not assessed in this run."))
             continue
         b.append(Block("text", text.split(".", 1)[1].strip()))
+        if key == "buildings" and "stiffness_correction" in used:
+            b.append(Block("text", "Relative stiffness modification factors M (Potts & Addenbrooke 1997; Franzius, "
+                                   "Potts & Burland 2006), read by the engineer from the published charts, were "
+                                   "applied to the buildings whose schedule row says so."))
+        if key == "utilities" and "pipe_stiffness" in used:
+            b.append(Block("text", "A bending reduction factor for the pipe-soil relative stiffness (Vorster et al. "
+                                   "2005), given by the engineer, was applied to the pipes whose schedule row "
+                                   "says so."))
         b.append(Block("text", f"Status: {status}"))
-        refs = docstring_references(importlib.import_module(module))
-        if refs:
-            b.append(Block("text", f"References (from the docstring of {label}):"))
-            b += [Block("text", f"- {r}") for r in refs]
+    b.append(Block("text", "The works cited are listed in full in section 5."))
     return b
+
+
+def _reference_blocks(run: RunOutputs) -> list[Block]:
+    """Section 5: every work the run's methods cite, in full, and nothing else."""
+    from .report_references import references_used
+
+    return [Block("break"), Block("heading", SECTIONS[4])] + [
+        Block("text", f"- {r}") for r in references_used(_methods_used(run))]
 
 
 def _results_blocks(run: RunOutputs, figure_paths: list[tuple[Path, str]]) -> list[Block]:
@@ -595,6 +589,8 @@ def _results_blocks(run: RunOutputs, figure_paths: list[tuple[Path, str]]) -> li
 
     b.append(Block("subheading", "3.2 Figures"))
     b += [Block("text", f"Figure {k}. {caption}") for k, (_, caption) in enumerate(figure_paths, start=1)]
+    b.append(Block("text", "Offsets across a drive are taken looking up-chainage (in the direction of increasing "
+                           "chainage): left negative, right positive, in every figure and table."))
     for k, (png, caption) in enumerate(figure_paths, start=1):
         b.append(Block("image", f"Figure {k}. {caption}", image=png))
 
@@ -603,7 +599,18 @@ def _results_blocks(run: RunOutputs, figure_paths: list[tuple[Path, str]]) -> li
     warnings = s.get("warnings", [])
     b.append(Block("text", f"{len(warnings)} warning(s)." if warnings else "None."))
     b += [Block("text", f"- {w}") for w in warnings]
-    return b
+    text, images = monitoring_blocks(run.frames.get("readings"), s, run.out_dir, _drive_labels(run),
+                                     len(figure_paths) + 1)
+    return b + text + images
+
+
+def _drive_labels(run: RunOutputs) -> dict[str, str]:
+    """Each drive's short label in the report: D1, D2, ... in the order of the route layer."""
+    return {d: f"D{k}" for k, d in enumerate(run.frames["route"]["drive"], start=1)}
+
+
+def _schedule_blocks(run: RunOutputs) -> list[Block]:
+    return schedule_blocks(run.frames, _drive_labels(run))
 
 
 def _subsection_layer(run: RunOutputs, heading: str, name: str, not_assessed: str):
@@ -657,7 +664,8 @@ def _building_blocks(run: RunOutputs) -> list[Block]:
                        f"{len(rows)} building(s) in category 2 or above, worst first:", mapping, cols,
                        "strain %: limiting tensile strain of the governing wall; defl ratio: its deflection ratio "
                        "Delta/L; hor strain %: its average horizontal strain (tensile positive); wall: the "
-                       "governing wall and whether it sags or hogs. Category 3 and above: detailed assessment.")
+                       "governing wall and whether it sags or hogs. Category 3 and above: detailed assessment. Every "
+                       "building is scheduled in A.1.")
 
 
 def _utility_blocks(run: RunOutputs) -> list[Block]:
@@ -690,7 +698,8 @@ def _utility_blocks(run: RunOutputs) -> list[Block]:
                        f"{len(rows)} pipe(s) near or over their limits, highest utilisation first:", mapping, cols,
                        "util: the largest demand over its allowable value; at m: where along the pipe; ue: "
                        "microstrain (axial tensile positive); rot, open: joint rotation and opening over one pipe "
-                       "length. Near-limit and exceeding pipes go to the asset owner for assessment.")
+                       "length. Near-limit and exceeding pipes go to the asset owner for assessment. Every pipe is "
+                       "scheduled in A.2 with its allowable values and their sources.")
 
 
 def _face_counts_block(k: int, st) -> Block:
@@ -717,20 +726,10 @@ def _face_blocks(run: RunOutputs) -> list[Block]:
     for k, r in enumerate(route.itertuples(index=False), start=1):
         b.append(_face_counts_block(k, layer[layer["drive"] == r.drive]))
     rows = face_stations_to_report(layer)
-    index = {d: f"D{k}" for k, d in enumerate(route["drive"], start=1)}
-    mapping = {"drive": lambda r: index.get(r["drive"], r["drive"]), "ch m": "chainage_m",
-               "cover m": "cover_m", "water kPa": "water_pressure_kpa", "min kPa": "support_min_kpa",
-               "max kPa": "support_max_kpa", "window kPa": "window_kpa", "status": "status",
-               "mode": "support_mode", "low cover": lambda r: "yes" if r.get("low_cover") else "no",
-               "river": lambda r: "yes" if r.get("in_river") else "no", "max by": "max_limited_by"}
-    cols = [("drive", 5, None), ("ch m", 7, ".1f"), ("cover m", 7, ".2f"), ("water kPa", 9, ".1f"),
-            ("min kPa", 7, ".1f"), ("max kPa", 7, ".1f"), ("window kPa", 10, ".1f"), ("status", 6, None),
-            ("mode", 11, None), ("low cover", 9, None), ("river", 5, None), ("max by", 12, None)]
-    return b + _listed(rows, "No face station has a narrow or closed window.",
-                       f"{len(rows)} station(s) with a narrow or closed window:", mapping, cols,
-                       "Pressures at the crown; window: maximum less minimum less twice the operating tolerance. "
-                       "These are planning bounds: the operating pressures are set and reviewed by the "
-                       "responsible engineer, under local codes.")
+    b.append(Block("text", f"{len(rows)} station(s) with a narrow or closed window: each is scheduled in A.3, with "
+                           "its pressures, support mode and what limits it." if len(rows) else
+                   "No face station has a narrow or closed window."))
+    return b
 
 
 CAUTIONS = (
@@ -803,17 +802,21 @@ def _section_chainages(run: RunOutputs, sections_chainage_m) -> dict[str, list[f
     return {k: v for k, v in out.items() if v}
 
 
-def _figures(run: RunOutputs, folder: Path, sections: dict[str, list[float]]) -> list[tuple[Path, str]]:
-    """Write the figures of the report into `folder`; (path, caption) per figure."""
+def _figures(run: RunOutputs, folder: Path, sections: dict[str, list[float]], paper: str = "A4"
+             ) -> list[tuple[Path, str]]:
+    """Write the figures of the report into `folder`, drawn for the paper of the figure pages; (path, caption) per
+    figure."""
     stem = run.stem
     out = []
-    png = figures.plan_map_png(run.gpkg, run.summary, folder / f"{stem}-plan.png", dpi=FIGURE_DPI)
+    size = {"paper": paper}
+    png = figures.plan_map_png(run.gpkg, run.summary, folder / f"{stem}-plan.png", dpi=FIGURE_DPI, **size)
     out.append((png, "Plan: settlement bands and contours, drives with chainage, buildings by damage category, "
                      "pipes by status, face stations with a narrow or closed window."))
     route = run.frames["route"]
     for k, name in enumerate(route["drive"], start=1):
         png = figures.longitudinal_section_png(run.gpkg, run.summary, name,
-                                               folder / f"{stem}-section-{k}-{_slug(name)}.png", dpi=FIGURE_DPI)
+                                               folder / f"{stem}-section-{k}-{_slug(name)}.png", dpi=FIGURE_DPI,
+                                               **size)
         out.append((png, f"Longitudinal section of D{k}, {name}: ground, tunnel and cover, settlement along the axis"
                          + (", face support window." if "face_stations" in run.layers else ".")))
     for k, name in enumerate(route["drive"], start=1):
@@ -821,117 +824,10 @@ def _figures(run: RunOutputs, folder: Path, sections: dict[str, list[float]]) ->
             where = ", ".join(f"{c:g}" for c in sections[name])
             png = figures.transverse_sections_png(run.gpkg, run.summary, name, sections[name],
                                                   folder / f"{stem}-transverse-{k}-{_slug(name)}.png",
-                                                  dpi=FIGURE_DPI)
+                                                  dpi=FIGURE_DPI, **size)
             out.append((png, f"Transverse sections across D{k}, {name}, at chainage {where} m: buildings over it, "
                              "settlement trough, horizontal strain across the route."))
     return out
-
-
-# ------------------------------------------------------------------------------------------------ rendering
-def _core_fonts_suffice(blocks: list[Block]) -> bool:
-    text = "\n".join([b.text for b in blocks] + [line for b in blocks for line in b.lines])
-    try:
-        text.encode("cp1252")
-    except UnicodeEncodeError:
-        return False
-    return True
-
-
-class _Renderer:
-    """Lays the blocks out on A4 pages with fig.text, top down."""
-
-    def __init__(self, pdf: PdfPages, header: str, check_glyphs: bool = False):
-        self.pdf, self.header, self.check_glyphs = pdf, header, check_glyphs
-        self.fig = None
-        self.page = 0
-        self.y = 0.0  # inches from the top of the page
-
-    def _start(self, size=A4):
-        self._finish()
-        self.fig = plt.figure(figsize=size)
-        self.page += 1
-        w, h = size
-        self.fig.text(MARGIN_IN / w, 1 - 0.4 / h, self.header, fontsize=7.5, color="0.35", weight="medium",
-                      parse_math=False)
-        self.fig.text(1 - MARGIN_IN / w, 0.4 / h, f"page {self.page}", fontsize=7.5, color="0.35", ha="right",
-                      weight="medium", parse_math=False)
-        self.fig.text(MARGIN_IN / w, 0.4 / h, "Greenfield estimates for planning: see section 4.", fontsize=7.5,
-                      color="0.35", weight="medium", parse_math=False)
-        self.y = 0.8
-
-    def _finish(self):
-        if self.fig is not None:
-            if self.check_glyphs:
-                note_missing_glyphs(self.fig)
-            self.pdf.savefig(self.fig)
-            plt.close(self.fig)
-            self.fig = None
-
-    def _line(self, text, size, family="sans-serif", weight="medium", gap=1.3, colour="k"):
-        step = size * gap / 72.0
-        if self.fig is None or self.y + step > A4[1] - 0.8:
-            self._start()
-        self.y += step
-        w, h = self.fig.get_size_inches()
-        self.fig.text(MARGIN_IN / w, 1 - self.y / h, text, fontsize=size, family=family, weight=weight,
-                      color=colour, va="baseline", parse_math=False)
-
-    def render(self, blocks: list[Block]):
-        for b in blocks:
-            if b.kind == "break":
-                self._finish()
-            elif b.kind == "title":
-                self._line(b.text, 18, weight="bold", gap=1.6)
-                self.y += 0.08
-            elif b.kind == "heading":
-                self.y += 0.1
-                self._line(b.text, 14, weight="bold", gap=1.6)
-            elif b.kind == "subheading":
-                if self.fig is not None and self.y > A4[1] - 2.0:
-                    self._finish()  # keep a subheading with what follows
-                self.y += 0.08
-                self._line(b.text, 10.5, weight="bold", gap=1.5)
-            elif b.kind == "text":
-                indent = "  " if b.text.startswith("- ") else ""
-                for line in textwrap.wrap(b.text, WRAP_CHARS, subsequent_indent=indent) or [""]:
-                    self._line(line, TEXT_PT)
-                self.y += 0.05
-            elif b.kind == "mono":
-                for line in b.lines:
-                    self._line(line, MONO_PT, family="monospace", gap=1.25)
-                self.y += 0.08
-            elif b.kind == "image":
-                self._image(b)
-        self._finish()
-
-    def _image(self, b: Block):
-        img = plt.imread(str(b.image))
-        if img.ndim == 3 and img.shape[2] == 4:
-            img = img[..., :3]  # the figures are drawn on white: no transparency to keep
-        wide = img.shape[1] >= img.shape[0]
-        size = (A4[1], A4[0]) if wide else A4
-        self._start(size)
-        w, h = size
-        caption = textwrap.wrap(b.text, int(0.9 * WRAP_CHARS * (w - 2 * MARGIN_IN) / (A4[0] - 2 * MARGIN_IN)))  # bold
-        for k, line in enumerate(caption):
-            self.fig.text(MARGIN_IN / w, 1 - (0.8 + 0.17 * k) / h, line, fontsize=9, weight="bold", parse_math=False)
-        top = 0.95 + 0.17 * len(caption)
-        ax = self.fig.add_axes([MARGIN_IN / w, 0.75 / h, 1 - 2 * MARGIN_IN / w, 1 - (0.75 + top) / h])
-        ax.imshow(img, interpolation="none")
-        ax.set_axis_off()
-        self._finish()
-
-
-def _atomic_pdf(path: Path, draw) -> Path:
-    """Write a PDF through a temporary file in its folder and an atomic rename."""
-    tmp = path.with_name(f".{path.name}.{uuid.uuid4().hex}.tmp")
-    try:
-        draw(tmp)
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    return path
 
 
 # ---------------------------------------------------------------------------------------------- the report
@@ -1010,18 +906,30 @@ def _report_inputs(run: RunOutputs, project) -> dict | None:
     return inputs
 
 
+def _control(inputs: dict | None) -> dict:
+    """The document control of `[report]` as the inputs carry it ({} when none was given)."""
+    return dict((inputs or {}).get("report") or {})
+
+
 def _write_pdf(run: RunOutputs, date: dt.date, inputs: dict | None, sections: dict, final: Path,
                keep_figures: bool) -> Path:
     """Draw the figures (in a temporary folder, unless kept beside the PDF), lay out the report and write it to
-    `final`."""
+    `final`: once to count the pages, once to write them with "page k of N"."""
     stem = run.stem
+    control = _control(inputs)
+    paper = control.get("paper") or "A4"
+    project = run.summary.get("project", stem)
+    title = control.get("title") or f"{project}: ground movement assessment"
+    document = " ".join(x for x in (control.get("document_number"),
+                                    f"revision {control['revision']}" if control.get("revision") else None) if x)
     with tempfile.TemporaryDirectory(dir=final.parent, prefix=f".{stem}-figures-") as tmp:
         folder = final.parent if keep_figures else Path(tmp)
-        figure_paths = _figures(run, folder, sections)
-        blocks = (_title_blocks(run, date, inputs) + _inputs_blocks(run, inputs) + _methods_blocks(run)
-                  + _results_blocks(run, figure_paths) + _caution_blocks(run))
-        header = f"{run.summary.get('project', stem)}: ground movement assessment, {_dated(date)}"
-        core = _core_fonts_suffice(blocks + [Block("text", header)])
+        figure_paths = _figures(run, folder, sections, paper)
+        blocks = (_title_blocks(run, date, inputs, title) + _inputs_blocks(run, inputs) + _methods_blocks(run)
+                  + _results_blocks(run, figure_paths) + _caution_blocks(run) + _reference_blocks(run)
+                  + _schedule_blocks(run))
+        marks = PageMarks(header=f"{title}, {_dated(date)}", footer=document or project)
+        core = core_fonts_suffice(blocks, marks)
         rc = {"pdf.use14corefonts": core, "pdf.fonttype": 42, "font.family": "sans-serif"}
         if core:
             rc.update({"font.sans-serif": ["Helvetica"], "font.monospace": ["Courier"]})
@@ -1029,12 +937,16 @@ def _write_pdf(run: RunOutputs, date: dt.date, inputs: dict | None, sections: di
             rc.update({"font.sans-serif": ["DejaVu Sans"], "font.monospace": ["DejaVu Sans Mono"]})
         from settle.version import __version__
 
-        metadata = {"Title": f"{run.summary.get('project', stem)}: ground movement assessment",
-                    "Subject": _dated(date), "Creator": f"settle {__version__}",
-                    "CreationDate": None}
+        metadata = {"Title": title, "Subject": (f"{document}: " if document else "") +
+                    f"ground movement assessment of {project}, {_dated(date)}",
+                    "Creator": f"settle {__version__}", "CreationDate": None}
+        if control.get("prepared_by"):
+            metadata["Author"] = control["prepared_by"]
+        with matplotlib.rc_context(rc):
+            pages = Renderer(None, marks, paper=paper).render(blocks)
 
         def draw(path):
             with matplotlib.rc_context(rc), PdfPages(path, metadata=metadata) as pdf:
-                _Renderer(pdf, header, check_glyphs=not core).render(blocks)
+                Renderer(pdf, marks, pages=pages, paper=paper, check_glyphs=not core).render(blocks)
 
-        return _atomic_pdf(final, draw)
+        return atomic_pdf(final, draw)

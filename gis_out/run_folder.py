@@ -88,7 +88,7 @@ def _write_run_files(result: Result, stage: Path, stem: str, monitoring, report:
         outputs["report"] = f"{stem}-report.pdf"
     summary = summarise(result, outputs=outputs)
     if monitoring:
-        summary["readings"] = _readings_summary(layers["readings"], monitoring.readings)
+        summary["readings"] = _readings_summary(project, layers["readings"], monitoring)
     write_text_atomic(stage / "summary.json", json.dumps(summary, indent=2) + "\n")
     if report:
         _report_pdf(project, stage, stage, stem, record.run_date)
@@ -197,16 +197,25 @@ def _write_sections(project, monitoring: Monitoring, out: Path) -> list[str]:
     names = []
     for section in monitored_sections(project, monitoring.readings, monitoring.analysis):
         path = out / f"section_{slug(section.drive)}_{section.chainage_m:.0f}.png"
-        section_png(section, path)
+        amber, red = project.monitoring
+        section_png(section, path, amber_mm=amber, red_mm=red)
         names.append(path.name)
     return names
 
 
-def _readings_summary(layer, readings) -> dict:
-    """Counts for summary.json: points compared, by trigger status, and rows left out of the readings file."""
+def _readings_summary(project, layer, monitoring: Monitoring) -> dict:
+    """For summary.json: points compared, by trigger status (every status, in order, zeros included), the trigger
+    levels, rows left out of the readings file, and the back-analysed fits with their 95 % intervals (as fit.json
+    gives them)."""
+    from settle.monitoring.fitting import STATUS_AMBER, STATUS_CLEAR, STATUS_RED, fit_report
+
     counts = layer["trigger_status"].value_counts()
-    return {"points": len(layer), "by_trigger_status": {k: int(v) for k, v in counts.items()},
-            "rows_left_out": readings.left_out_count}
+    amber, red = project.monitoring
+    return {"points": len(layer),
+            "by_trigger_status": {k: int(counts.get(k, 0)) for k in (STATUS_CLEAR, STATUS_AMBER, STATUS_RED)},
+            "trigger_levels_mm": {"amber_mm": amber, "red_mm": red},
+            "rows_left_out": monitoring.readings.left_out_count,
+            "fits": fit_report(project, monitoring.readings, monitoring.analysis)["fits"]}
 
 
 def write_run_report(project, out: Path, stem: str, date=None, record: RunRecord | None = None) -> Path:

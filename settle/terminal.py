@@ -36,6 +36,12 @@ def summary_table(summary: dict, folder) -> str:
         if envelope:
             worst = ", ".join(f"{k}: {n}" for k, n in envelope["by_worst_status"].items() if n)
             rows.append(("worst over the sequence", worst))
+    readings = summary.get("readings")
+    if readings:
+        counts = ", ".join(f"{k}: {v}" for k, v in readings.get("by_trigger_status", {}).items())
+        levels = readings.get("trigger_levels_mm") or {}
+        rows.append(("monitoring triggers", f"{counts} (of {readings.get('points', 0)} points"
+                     + (f"; amber {levels['amber_mm']:g} mm, red {levels['red_mm']:g} mm" if levels else "") + ")"))
     for face in summary.get("face_support", []):
         rows.append(("face support window",
                      f"{face['drive']}: smallest {face['face_min_window_kpa']:.1f} kPa at chainage "
