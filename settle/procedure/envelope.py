@@ -220,7 +220,7 @@ def stage_visits(sequence: Sequence, geometries) -> list[tuple[Stage, np.ndarray
     return visits
 
 
-def _subset(table, keep: np.ndarray):
+def subset_table(table, keep: np.ndarray):
     """A Buildings or Utilities table reduced to the rows `keep` (indices), every per-item field taken alike."""
     n = len(table)
     changes = {}
@@ -281,7 +281,7 @@ def building_envelope(sequence: Sequence, buildings, options=None, completion=No
     reached = np.flatnonzero(np.any([last >= first for first, last in windows.values()], axis=0)) if n else []
     always_screened = np.zeros(n, dtype=bool)
     if len(reached):
-        always_screened[reached] = screened_at_every_stage(sequence, _subset(buildings, reached), options,
+        always_screened[reached] = screened_at_every_stage(sequence, subset_table(buildings, reached), options,
                                                            completion.max_settlement_mm[reached])
     for d in sequence.order:
         first, last = windows[d]
@@ -350,7 +350,7 @@ def utility_envelope(sequence: Sequence, utilities, options=None) -> UtilityEnve
     rank = {"within limits": 0, "near limit": 1, "exceeds": 2, "crosses the tunnel": 3, "not checked": -1}
 
     def assessed(movements, keep):
-        return assess_utilities(_subset(utilities, keep), movements, options)
+        return assess_utilities(subset_table(utilities, keep), movements, options)
 
     def assessed_at(stage, keep):
         return assessed(sequence.stage_movements(stage.drive, stage.face_chainage_m), keep)

@@ -140,3 +140,17 @@ def main():
 
 if __name__ == "__main__":
     main()
+
+
+def bench_project(n: int = N):
+    """The benchmark as a project: n buildings along the straight drive, in clay of K = 0.5 (the engine's movements).
+    """
+    from settle.inputs.model import Drive, Ground, Layer, Output, Project, Surface
+
+    polygons, height = rectangles(n)
+    buildings = buildings_from_table(polygons, pd.DataFrame({"id": [f"B{k}" for k in range(n)], "height_m": height}),
+                                     BuildingDefaults(default_foundation_depth_m=0.0, default_structure="masonry"))
+    ground = Ground(Surface(level_m=10.0), 8.0, (Layer("clay", 10.0, 19.0, K, "cohesive"),))
+    drive = Drive("bench", np.array([[0.0, 0.0], [LENGTH_M, 0.0]]), np.array([10.0 - AXIS_DEPTH_M] * 2), "axis",
+                  DIAMETER_M, VOLUME_LOSS_PCT)
+    return Project("bench", "EPSG:25832", ground, (drive,), Output(1.0, (1.0,)), buildings=buildings)

@@ -14,13 +14,10 @@ import argparse
 import time
 
 import numpy as np
-import pandas as pd
 
 from settle.assessments.buildings import assess_buildings
-from settle.inputs.footprints import BuildingDefaults, buildings_from_table
-from settle.inputs.model import Drive, Ground, Layer, Output, Project, Surface
 from settle.procedure.envelope import Sequence, building_envelope
-from tests.benchmarks.buildings import AXIS_DEPTH_M, DIAMETER_M, K, LENGTH_M, N, VOLUME_LOSS_PCT, rectangles
+from tests.benchmarks.buildings import LENGTH_M, N, bench_project
 
 
 def best_of(repeat: int, run):
@@ -39,13 +36,8 @@ def main():
     parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
     n = args.buildings
-    polygons, height = rectangles(n)
-    buildings = buildings_from_table(polygons, pd.DataFrame({"id": [f"B{k}" for k in range(n)], "height_m": height}),
-                                     BuildingDefaults(default_foundation_depth_m=0.0, default_structure="masonry"))
-    ground = Ground(Surface(level_m=10.0), 8.0, (Layer("clay", 10.0, 19.0, K, "cohesive"),))
-    drive = Drive("bench", np.array([[0.0, 0.0], [LENGTH_M, 0.0]]), np.array([10.0 - AXIS_DEPTH_M] * 2), "axis",
-                  DIAMETER_M, VOLUME_LOSS_PCT)
-    project = Project("bench", "EPSG:25832", ground, (drive,), Output(1.0, (1.0,)), buildings=buildings)
+    project = bench_project(n)
+    buildings = project.buildings
     t0 = time.perf_counter()
     sequence = Sequence(project)
     t1 = time.perf_counter()
