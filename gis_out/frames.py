@@ -302,6 +302,16 @@ def rows_frame(rows: list[dict], fields, crs: str, layer: str) -> gpd.GeoDataFra
     return _frame(columns, [r["geometry"] for r in rows], crs, layer)
 
 
+def _add_probability_columns(layers: dict, probability: dict) -> None:
+    """The probabilistic run's fields appended to the buildings, utilities and grid layers (rows follow them)."""
+    for layer, key in (("buildings", "buildings"), ("utilities", "utilities"), ("grid", "grid")):
+        found = probability.get(key)
+        if found is not None and layer in layers:
+            for name, values in found.columns().items():
+                if name not in ("id", "x_m", "y_m"):  # the layer has them (ids) or its geometry (positions)
+                    layers[layer][name] = values
+
+
 def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
     """All GIS layers of a run, keyed by layer name, in the project CRS.
 
@@ -346,6 +356,8 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
         layers["utilities"]["status_class"] = _status_class(layers["utilities"]["status"], PIPE_STATUSES)
         layers["utility_critical_points"] = rows_frame(critical_point_rows(pipes, result.utilities),
                                                        CRITICAL_POINT_FIELDS, crs, "utility_critical_points")
+    if result.probability is not None:
+        _add_probability_columns(layers, result.probability)
     if result.face:
         layers["route"] = _with_face_summary(layers["route"], result.face)
         layers["face_stations"] = face_frame(result.face, crs)

@@ -36,6 +36,12 @@ def summary_table(summary: dict, folder) -> str:
         if envelope:
             worst = ", ".join(f"{k}: {n}" for k, n in envelope["by_worst_status"].items() if n)
             rows.append(("worst over the sequence", worst))
+    probable = summary.get("probabilistic")
+    if probable and probable.get("buildings"):
+        b = probable["buildings"]
+        rows.append(("P(category 2 or worse)", f"above 1 %: {b['prob_category_ge_2_above_1pct']}, above 10 %: "
+                     f"{b['prob_category_ge_2_above_10pct']}, above 50 %: {b['prob_category_ge_2_above_50pct']} "
+                     f"buildings ({probable['samples']} samples, seed {probable['seed']})"))
     readings = summary.get("readings")
     if readings:
         counts = ", ".join(f"{k}: {v}" for k, v in readings.get("by_trigger_status", {}).items())

@@ -136,3 +136,6 @@ class Project:
     # Document control of the report ([report]): settle.inputs.report_settings.DocumentControl (all defaults when
     # the file has no [report]).
     report: object | None = None
+    # Distributions of volume loss and K ([uncertainty], [drives.*_distribution]):
+    # settle.inputs.uncertainty_settings.ProjectUncertainty; None = the deterministic run only.
+    uncertainty: object | None = None

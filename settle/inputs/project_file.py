@@ -70,6 +70,9 @@ the project's vertical datum, up positive)
     stage_step_m        number more than 0 and at most 50: the face step between two stages of the envelope;
                         default (our choice): a quarter of the drive's smallest trough width i = K z0.
 
+[uncertainty]           optional: samples, seed, drives_correlated of a probabilistic run; per drive
+                        [drives.volume_loss_distribution] and [drives.trough_width_distribution]
+                        (settle.inputs.uncertainty_settings).
 [report]                optional: document control of the report (settle.inputs.report_settings): document_number,
                         revision, title, client, prepared_by, checked_by, approved_by, paper ("A4" | "A3", default
                         "A4"), and [[report.revisions]] with revision, date and description each, oldest first.
@@ -116,6 +119,7 @@ import pyproj
 from ..errors import InputError
 from .construction_settings import CONSTRUCTION_KEYS, MAX_STAGE_STEP_M, Construction, check_sequence
 from .report_settings import read_document_control
+from .uncertainty_settings import DRIVE_DISTRIBUTION_KEYS, project_uncertainty, read_drive_uncertainty
 from .building_settings import STIFFNESS_METHODS, AssessmentOptions
 from .footprints import DEFAULT_E_OVER_G, MODIFICATION_ATTRIBUTES, BuildingDefaults, read_buildings
 from .utility_lines import VERTICALS as UTILITY_VERTICALS
@@ -130,14 +134,14 @@ from .tables import (COORDINATE_RANGE, DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE,
                      read_surface_points, shapefile_sidecars, shown)
 
 TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings",
-            "monitoring", "construction", "report")
+            "monitoring", "construction", "report", "uncertainty")
 PROJECT_KEYS = ("name", "crs")
 GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
 STRENGTH_KEYS = ("friction_angle_deg", "cohesion_kpa", "undrained_strength_kpa", "shear_modulus_mpa", "k0")
 DRIVE_KEYS = ("name", "alignment", "outer_diameter_m", "volume_loss_pct", "face_chainage_m", "inner_diameter_m",
               "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z", "reaches",
-              "face_support")
+              "face_support", *DRIVE_DISTRIBUTION_KEYS)
 GIS_ONLY_KEYS = ("alignment_layer", "alignment_feature", "alignment_z")
 REACH_KEYS = ("from_chainage_m", "to_chainage_m", "volume_loss_pct", "trough_width_k")
 SUPPORT_KEYS = ("from_chainage_m", "to_chainage_m", "mode")
@@ -216,7 +220,16 @@ def load_project(path) -> Project:
                    utility_options=utility_options, buildings=buildings, building_options=building_options,
                    monitoring=monitoring, input_files=tuple(files.read), construction=_construction(doc, name, drives),
                    report=read_document_control(_table(doc, "report", name, required=False), f"{name} [report]",
-                                                _check_keys))
+                                                _check_keys),
+                   uncertainty=_uncertainty(doc, name))
+
+
+def _uncertainty(doc: dict, file: str):
+    """[uncertainty] and each drive's distributions (settle.inputs.uncertainty_settings); None without any."""
+    per_drive = [read_drive_uncertainty(item, _named(item, f"{file} [[drives]] #{i}"), item["name"])
+                 for i, item in enumerate(doc["drives"], start=1)]
+    table = _table(doc, "uncertainty", file) if "uncertainty" in doc else None
+    return project_uncertainty(table, per_drive, f"{file} [uncertainty]")
 
 
 def _construction(doc: dict, file: str, drives) -> Construction | None:

@@ -1,6 +1,6 @@
 """The orchestrator: the engineer's procedure, step by step.
 
-    result = Assessment(project).greenfield().buildings().utilities().envelope().face().result
+    result = Assessment(project).greenfield().buildings().utilities().envelope().probability().face().result
 
 Each step can be run and tested alone; the numbers come from the model functions of `settle.engine.troughs`,
 superposed by `settle.engine.field`, on the route of `settle.inputs.route`, and from the assessments of
@@ -125,6 +125,26 @@ class Assessment:
             self._result.utility_envelope = self._utility_envelope
         return self
 
+    def probability(self) -> "Assessment":
+        """Probabilities of damage categories and utility statuses, and settlement percentiles on the grid, over the
+        distributions of volume loss and K the project gives (`probability`); nothing without distributions."""
+        if getattr(self.project, "uncertainty", None) is None or self._result is None:
+            return self
+        from .probability import ProbabilisticRun
+
+        t = time.perf_counter()
+        self.progress("probability", 0.0)
+        run = ProbabilisticRun(self.project)
+        buildings = run.buildings() if self.project.buildings is not None else None
+        utilities = run.utilities() if self.project.utilities is not None else None
+        grid = self._result.grid
+        self._result.probability = {"buildings": buildings, "utilities": utilities,
+                                    "grid": run.settlement_percentiles(grid.x_m, grid.y_m),
+                                    "summary": run.summary(buildings, utilities)}
+        self.progress("probability", 1.0)
+        self._timed("probability", t)
+        return self
+
     def face(self) -> "Assessment":
         """Face support pressure window along every drive (runs when the layers carry their strengths)."""
         if self.elements is None:
@@ -211,4 +231,4 @@ def run(project: Project | str | Path, progress=None) -> Result:
         project = load_project(project)
     assessment = Assessment(project, progress).route()
     check_run_size(project, assessment.drives, assessment.elements)
-    return assessment.greenfield().buildings().utilities().envelope().face().result
+    return assessment.greenfield().buildings().utilities().envelope().probability().face().result

@@ -35,6 +35,10 @@ class Result:
     # The worst over the construction sequence (settle.procedure.envelope), when there are buildings or utilities.
     building_envelope: object | None = None  # BuildingEnvelope
     utility_envelope: object | None = None  # UtilityEnvelope
+    # The probabilistic run (settle.procedure.probability), when the project gives distributions: a dict with
+    # "buildings" (BuildingProbabilities), "utilities" (UtilityProbabilities), "grid" (SettlementPercentiles at the
+    # grid nodes) and "summary" (summary.json's "probabilistic").
+    probability: dict | None = None
 
     @property
     def lost_volume_m3(self) -> float:

@@ -113,6 +113,8 @@ def summarise(result: Result, outputs: dict[str, str] | None = None) -> dict:
              "min_cover_m": least.get(st.drive)}
             for st in result.face
         ]
+    if result.probability is not None:
+        summary["probabilistic"] = result.probability["summary"]
     if outputs:
         summary["outputs"] = outputs
     return summary
