@@ -52,6 +52,7 @@ GEOMETRY_TYPES = {
     "grid": "Point",
     "points": "Point",
     "settlement_bands": "MultiPolygon",
+    "settlement_bands_p95": "MultiPolygon",
     "settlement_lines": "MultiLineString",
     "face_stations": "Point",
     "buildings": "MultiPolygon",
@@ -142,12 +143,13 @@ def points_frame(points: Movements, ids, crs: str) -> gpd.GeoDataFrame:
     return _frame(columns, shapely.points(points.x_m, points.y_m), crs, "points")
 
 
-def bands_frame(rows: list[dict], crs: str) -> gpd.GeoDataFrame:
-    """Settlement bands (rows of `settlement_bands`) as a frame; empty rows give an empty layer with the schema."""
+def bands_frame(rows: list[dict], crs: str, layer: str = "settlement_bands") -> gpd.GeoDataFrame:
+    """Settlement bands (rows of `settlement_bands`, or of `settlement_bands_p95`) as a frame; empty rows give an
+    empty layer with the schema."""
     columns = {"band": np.array([r["band"] for r in rows], dtype=np.int64),
                "lower_mm": np.array([r["lower_mm"] for r in rows], dtype=np.float64),
                "upper_mm": np.array([r["upper_mm"] for r in rows], dtype=np.float64)}
-    return _frame(columns, [r["geometry"] for r in rows], crs, "settlement_bands")
+    return _frame(columns, [r["geometry"] for r in rows], crs, layer)
 
 
 def lines_frame(rows: list[dict], crs: str) -> gpd.GeoDataFrame:
@@ -358,6 +360,9 @@ def frames(result: Result) -> dict[str, gpd.GeoDataFrame]:
                                                        CRITICAL_POINT_FIELDS, crs, "utility_critical_points")
     if result.probability is not None:
         _add_probability_columns(layers, result.probability)
+        if result.probability.get("tiles_p95") is not None:
+            layers["settlement_bands_p95"] = bands_frame(
+                settlement_bands(result.probability["tiles_p95"], levels, levels_where), crs, "settlement_bands_p95")
     if result.face:
         layers["route"] = _with_face_summary(layers["route"], result.face)
         layers["face_stations"] = face_frame(result.face, crs)

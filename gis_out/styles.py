@@ -180,8 +180,8 @@ def band_label(band: int, lower_mm: float, upper_mm: float | None) -> str:
     return f"band {band}: {lower_mm:g}-{upper_mm:g} mm"
 
 
-def band_style(frame, levels_mm=None) -> LayerStyle | None:
-    """Palette table of `settlement_bands`, by the integer field `band`.
+def band_style(frame, levels_mm=None, layer: str = "settlement_bands") -> LayerStyle | None:
+    """Palette table of `settlement_bands` (or `settlement_bands_p95`, drawn alike), by the integer field `band`.
 
     Parameters
     ----------
@@ -196,7 +196,6 @@ def band_style(frame, levels_mm=None) -> LayerStyle | None:
     -------
     LayerStyle, or None when there are no levels and no rows (nothing to label).
     """
-    layer = "settlement_bands"
     values, _ = _class_values(frame, layer, "band")
     if levels_mm is not None:
         levels = check_levels(levels_mm)
@@ -227,7 +226,8 @@ def band_style(frame, levels_mm=None) -> LayerStyle | None:
     classes = tuple(StyleClass(k, band_label(k, *bounds[k]),
                                Symbol("fill", colours[k], opacity=BAND_OPACITY, width_mm=0.2, outline="#5a5a5a"))
                     for k in sorted(bounds))
-    return LayerStyle(layer, "band", classes, "settlement bands, by band number (settlement positive downward)")
+    what = "95th percentile settlement bands" if layer.endswith("_p95") else "settlement bands"
+    return LayerStyle(layer, "band", classes, f"{what}, by band number (settlement positive downward)")
 
 
 def damage_style(frame, layer: str = "buildings") -> LayerStyle:
@@ -280,8 +280,8 @@ def status_style(frame, layer: str, words, symbols, title: str) -> LayerStyle:
 
 def layer_style(name: str, frame, levels_mm=None) -> LayerStyle | None:
     """The palette table of a result layer, or None for a layer with no default style."""
-    if name == "settlement_bands":
-        return band_style(frame, levels_mm)
+    if name in ("settlement_bands", "settlement_bands_p95"):
+        return band_style(frame, levels_mm, name)
     if name in ("buildings", "building_walls"):
         return damage_style(frame, name)
     if name == "utilities":

@@ -109,3 +109,18 @@ def test_without_distributions_the_run_is_todays(tmp_path):
 def test_bad_distributions_are_one_line_errors(tmp_path, distributions, uncertainty, pattern):
     with pytest.raises(InputError, match=pattern):
         load_project(site_with(tmp_path, distributions, uncertainty))
+
+
+def test_the_95th_percentile_bands_agree_with_the_grid_percentiles(probable):
+    out, _, _ = probable
+    bands = gpd.read_file(out / "ostrey.gpkg", layer="settlement_bands_p95")
+    grid = gpd.read_file(out / "ostrey.gpkg", layer="grid")
+    levels = [1, 2, 5, 10, 15, 20]  # demo_site/ostrey.toml [output] contour_levels_mm
+    top = float(np.nanmax(grid["settlement_p95_mm"]))
+    highest = int(np.searchsorted(levels, top, side="right")) - 1
+    assert int(bands["band"].max()) == highest  # the largest p95 on the grid lies in the highest band drawn
+    design = gpd.read_file(out / "ostrey.gpkg", layer="settlement_bands")
+    assert int(design["band"].max()) <= highest
+    from .gpkg_conformance import problems
+
+    assert problems(out / "ostrey.gpkg") == []  # the new layer and fields keep the GeoPackage conformant

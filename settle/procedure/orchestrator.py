@@ -138,8 +138,11 @@ class Assessment:
         buildings = run.buildings() if self.project.buildings is not None else None
         utilities = run.utilities() if self.project.utilities is not None else None
         grid = self._result.grid
+        levels = self.project.output.contour_levels_mm
         self._result.probability = {"buildings": buildings, "utilities": utilities,
                                     "grid": run.settlement_percentiles(grid.x_m, grid.y_m),
+                                    "tiles_p95": run.percentile_tiles(self._result.tiles, 95.0,
+                                                                      lowest_mm=min(levels)),
                                     "summary": run.summary(buildings, utilities)}
         self.progress("probability", 1.0)
         self._timed("probability", t)

@@ -95,6 +95,8 @@ from .orchestrator import drives_and_elements
 
 #: K values at which each drive with a sampled K is assessed (our choice; see the module docstring and the benchmark).
 DEFAULT_K_NODES = 16
+#: Nodes of the percentile contours: those whose design settlement reaches the lowest contour level over this. [-]
+TILE_REACH_FACTOR = 10.0
 #: Cells (assets or places x samples) per batch of the fast path's arrays: a few arrays of 8 bytes a cell are held at
 #: once, so about 32 MB each (bounds memory whatever the number of samples).
 CELLS_PER_BATCH = 4_000_000
@@ -687,6 +689,36 @@ class ProbabilisticRun:
             out[b] = np.percentile(total, percentiles, axis=1).T  # total: (places, samples)
         self.timings_s["settlement_percentiles"] = time.perf_counter() - t0
         return SettlementPercentiles(x, y, np.asarray(depth), tuple(float(p) for p in percentiles), out)
+
+    def percentile_tiles(self, tiles, percentile: float = 95.0, reach_factor: float = TILE_REACH_FACTOR,
+                         lowest_mm: float | None = None):
+        """The settlement tiles of a percentile over the samples (`settlement_percentiles` at the tiles' nodes), for
+        contouring: every node whose design settlement is at least `lowest_mm` / `reach_factor` is evaluated, the
+        others are left at zero (our choice: with the default factor 10 a node would need its percentile ten times
+        its design value to reach the lowest contour level). Returns a new SettlementTiles. [mm]"""
+        from dataclasses import replace as copy_with
+
+        out = copy_with(tiles, settlement_mm={})
+        floor = 0.0 if lowest_mm is None else lowest_mm / reach_factor
+        keys = sorted(tiles.settlement_mm)
+        rows, cols = np.divmod(np.arange(tiles.size * tiles.size), tiles.size)
+        xs, ys, where = [], [], []
+        for key in keys:
+            block = tiles.settlement_mm[key].ravel()
+            keep = np.flatnonzero(block >= max(floor, 1e-12))
+            tr, tc = key
+            xs.append(tiles.origin_x_m + (tc * tiles.size + cols[keep]) * tiles.spacing_m)
+            ys.append(tiles.origin_y_m + (tr * tiles.size + rows[keep]) * tiles.spacing_m)
+            where.append(keep)
+        x, y = (np.concatenate(v) if v else np.empty(0) for v in (xs, ys))
+        values = self.settlement_percentiles(x, y, percentiles=(percentile,)).settlement_mm[:, 0] if len(x) else x
+        start = 0
+        for key, keep in zip(keys, where):
+            block = np.zeros(tiles.size * tiles.size)
+            block[keep] = np.nan_to_num(values[start:start + len(keep)])
+            out.settlement_mm[key] = block.reshape(tiles.size, tiles.size)
+            start += len(keep)
+        return out
 
     # ----------------------------------------------------------------------------------------------- summary
     def summary(self, buildings: BuildingProbabilities | None = None,
