@@ -52,6 +52,7 @@ from settle.errors import InputError  # noqa: E402
 from . import figures  # noqa: E402
 from .png import glyph_check  # noqa: E402
 from .report_monitoring import monitoring_blocks  # noqa: E402
+from .report_probability import probability_blocks  # noqa: E402
 from .report_schedules import schedule_blocks  # noqa: E402
 from .report_layout import MONO_CHARS, Block, PageMarks, Renderer, atomic_pdf, core_fonts_suffice  # noqa: E402
 from .report_tables import num as _num  # noqa: E402
@@ -598,7 +599,10 @@ def _results_blocks(run: RunOutputs, figure_paths: list[tuple[Path, str]]) -> li
     b += [Block("text", f"- {w}") for w in warnings]
     text, images = monitoring_blocks(run.frames.get("readings"), s, run.out_dir, _drive_labels(run),
                                      len(figure_paths) + 1)
-    return b + text + images
+    more, drawn = probability_blocks(run.frames.get("buildings"), run.frames.get("utilities"), s,
+                                     figure_paths[0][0].parent if figure_paths else run.out_dir,
+                                     len(figure_paths) + len(images) + 1, _drive_labels(run))
+    return b + text + images + more + drawn
 
 
 def _drive_labels(run: RunOutputs) -> dict[str, str]:

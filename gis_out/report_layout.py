@@ -144,8 +144,10 @@ class Renderer:
         """Fixed-width lines; a table (a header and a rule of dashes above its rows) that runs onto the next page
         repeats its header there."""
         head = lines[:2] if len(lines) > 2 and set(lines[1]) == {"-"} else []
+        step = MONO_PT * 1.25 / 72.0
+        if head and self.fig is not None and self.y + 3 * step > A4[1] - 0.8:
+            self._finish()  # a table's header, its rule and its first row stay together
         for k, line in enumerate(lines):
-            step = MONO_PT * 1.25 / 72.0
             if head and k >= 2 and self.fig is not None and self.y + step > A4[1] - 0.8:
                 self._start()
                 for h in head:

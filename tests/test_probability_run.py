@@ -124,3 +124,21 @@ def test_the_95th_percentile_bands_agree_with_the_grid_percentiles(probable):
     from .gpkg_conformance import problems
 
     assert problems(out / "ostrey.gpkg") == []  # the new layer and fields keep the GeoPackage conformant
+
+
+def test_the_report_gives_the_likeliest_buildings_a_figure_and_the_caution(probable):
+    import pypdf
+
+    out, _, project = probable
+    done = subprocess.run([sys.executable, "-m", "settle", "report", project, "--out", out], capture_output=True,
+                          text=True)
+    assert done.returncode == 0, done.stderr
+    reader = pypdf.PdfReader(out / "ostrey-report.pdf")
+    text = "\n".join(page.extract_text() for page in reader.pages)
+    section = " ".join(text[text.rindex("3.8 Probability of damage"):].split())
+    buildings = gpd.read_file(out / "ostrey.gpkg", layer="buildings")
+    top = buildings.sort_values("prob_category_ge_2", ascending=False).iloc[0]
+    assert (f"{top['id']} {int(top['category'])} {top['prob_category_ge_1']:.2f} +- "
+            f"{top['prob_category_ge_1_se']:.2f} {top['prob_category_ge_2']:.2f} +-") in section
+    assert "The probabilities are only as good as the distributions" in section
+    assert "Probability of damage: histogram of the damage category" in text
