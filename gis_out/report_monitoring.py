@@ -72,7 +72,7 @@ def monitoring_blocks(layer, summary: dict, out_dir: Path, drive_labels: dict[st
         b.append(Block("text", "No drive had enough readings past the face to fit."))
     figures = []
     names = (summary.get("outputs") or {}).get("readings_sections") or []
-    for k, name in enumerate(names):
+    for name in names:
         path = Path(out_dir) / name
         if path.is_file():
             figures.append(Block("image", f"Figure {first_figure + len(figures)}. Monitored cross-section "

@@ -43,6 +43,15 @@ def arc(radius, angle_deg, n, start=(0.0, 0.0), heading_deg=0.0):
     return np.column_stack([cx + radius * np.sin(h0 + a), cy - radius * np.cos(h0 + a)])
 
 
+def demo_copy(folder) -> Path:
+    """The demo site copied into `folder`/site (without earlier outputs), for a test to edit; its project file."""
+    import shutil
+
+    site = Path(folder) / "site"
+    shutil.copytree(DEMO, site, ignore=shutil.ignore_patterns("out", "fit"))
+    return site / "ostrey.toml"
+
+
 def run_demo(out) -> None:
     """`settle run` on the demo site through the command line, quietly, into `out`; fails the test if it fails."""
     done = subprocess.run([sys.executable, "-m", "settle", "run", DEMO / "ostrey.toml", "--out", out, "--quiet"],

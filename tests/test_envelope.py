@@ -162,27 +162,21 @@ def test_buildings_screened_at_every_stage_are_category_0_at_every_stage():
     ("stage = 1", r'\[construction\]: unknown key "stage"'),
 ])
 def test_construction_keys_are_checked(tmp_path, text, pattern):
-    import shutil
-
+    
     from settle.errors import InputError
     from settle.inputs.project_file import load_project
 
-    site = tmp_path / "site"
-    shutil.copytree(b.DEMO, site, ignore=shutil.ignore_patterns("out", "fit"))
-    project = site / "ostrey.toml"
+    project = b.demo_copy(tmp_path)
     project.write_text(project.read_text() + f"\n[construction]\n{text}\n")
     with pytest.raises(InputError, match=pattern):
         load_project(project)
 
 
 def test_the_demo_reads_its_construction_sequence(tmp_path):
-    import shutil
-
+    
     from settle.inputs.project_file import load_project
 
-    site = tmp_path / "site"
-    shutil.copytree(b.DEMO, site, ignore=shutil.ignore_patterns("out", "fit"))
-    project = site / "ostrey.toml"
+    project = b.demo_copy(tmp_path)
     names = [d.name for d in load_project(project).drives]
     sequence = ", ".join(f'"{n}"' for n in reversed(names))
     project.write_text(project.read_text() + f"\n[construction]\nsequence = [{sequence}]\nstage_step_m = 1.5\n")

@@ -1,7 +1,6 @@
 """The report as a document an engineer can issue: document control from [report], "page k of N" on every page,
 the PDF's metadata, complete schedules, the monitoring section, A3 figure pages. Read back with pypdf."""
 import re
-import shutil
 import subprocess
 import sys
 
@@ -116,9 +115,7 @@ def test_monitoring_section_tables_every_point_and_the_fits(monitored):
 
 
 def test_a3_puts_the_figures_on_a3_landscape_pages(tmp_path):
-    site = tmp_path / "site"
-    shutil.copytree(builders.DEMO, site, ignore=shutil.ignore_patterns("out", "fit"))
-    project = site / "ostrey.toml"
+    project = builders.demo_copy(tmp_path)
     project.write_text(project.read_text().replace('paper = "A4"', 'paper = "A3"'))
     done = subprocess.run([sys.executable, "-m", "settle", "run", project, "--out", tmp_path / "out", "--report",
                            "--quiet"], capture_output=True, text=True)
@@ -139,9 +136,7 @@ def test_a3_puts_the_figures_on_a3_landscape_pages(tmp_path):
     ('client = ""', r"\[report\]: client must be non-empty text"),
 ])
 def test_report_keys_are_checked(tmp_path, text, pattern):
-    site = tmp_path / "site"
-    shutil.copytree(builders.DEMO, site, ignore=shutil.ignore_patterns("out", "fit"))
-    project = site / "ostrey.toml"
+    project = builders.demo_copy(tmp_path)
     source = project.read_text()
     head, tail = source.split("[[report.revisions]]", 1)
     key = text.split(" =")[0]
@@ -152,9 +147,7 @@ def test_report_keys_are_checked(tmp_path, text, pattern):
 
 
 def test_revision_dates_must_be_dates_oldest_first(tmp_path):
-    site = tmp_path / "site"
-    shutil.copytree(builders.DEMO, site, ignore=shutil.ignore_patterns("out", "fit"))
-    project = site / "ostrey.toml"
+    project = builders.demo_copy(tmp_path)
     source = project.read_text()
     project.write_text(source.replace("date = 2026-11-27", 'date = "27/11/2026"'))
     with pytest.raises(InputError, match=r"\[\[report.revisions\]\] #2: date must be a date such as 2026-11-30"):
