@@ -87,6 +87,25 @@ def _add_run(commands) -> None:
                      help="monitoring readings: adds the `readings` layer (latest reading, prediction, difference, "
                           "trigger status against [monitoring] amber_mm and red_mm) and a figure per monitored "
                           "cross-section")
+    where = run.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=_worker_count, metavar="N",
+                       help="run the heavy steps on a local Dask cluster of N worker processes (the work is split by "
+                            "drive and by tiles along the route; the numbers are the same as in one process)")
+    where.add_argument("--scheduler", metavar="tcp://HOST:PORT",
+                       help="send the heavy steps to a running Dask cluster: a scheduler started with `dask "
+                            "scheduler` and workers started with `dask worker tcp://HOST:PORT`, each with this "
+                            "settle version installed")
+
+
+def _worker_count(text: str) -> int:
+    """--workers N: a whole number from 1 to 256."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number of worker processes; got {text!r}") from None
+    if not 1 <= value <= 256:
+        raise argparse.ArgumentTypeError(f"must be from 1 to 256; got {value}")
+    return value
 
 
 def _add_report(commands) -> None:
@@ -132,15 +151,19 @@ def _run(args) -> int:
     from .procedure.monitoring_steps import read_monitoring
     from .procedure.orchestrator import run
     from .procedure.run_record import record_run
+    from .procedure.workers import Workers
 
     project = load_project(args.project)
     out, stem = check_out_folder(args.out), output_stem(args.project)
-    record = record_run(project, args.argv, {"report": args.report, "readings": args.readings, "date": args.date},
-                        args.date, [args.readings] if args.readings else ())
+    options = {"report": args.report, "readings": args.readings, "date": args.date}
+    if args.workers or args.scheduler:
+        options.update(workers=args.workers, scheduler=args.scheduler)
+    record = record_run(project, args.argv, options, args.date, [args.readings] if args.readings else ())
     monitoring = read_monitoring(project, args.readings) if args.readings else None
     progress = _Progress(sys.stderr.isatty() and not args.quiet)
     try:
-        result = run(project, progress)
+        with Workers(count=args.workers, scheduler=args.scheduler) as workers:
+            result = run(project, progress, workers)
     finally:
         progress.done()
     summary = write_run(result, out, stem, monitoring=monitoring, report=args.report, record=record)

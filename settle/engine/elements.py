@@ -55,6 +55,10 @@ class Elements:
         ratio = np.maximum(self.max_settlement_m / precision_m, np.e)
         return self.trough_width_m * np.sqrt(2.0 * np.log(ratio))
 
+    def take(self, rows) -> "Elements":
+        """The elements at `rows` (indices or a mask), in that order."""
+        return Elements(**{k: getattr(self, k)[rows] for k in Elements.__dataclass_fields__})
+
     @staticmethod
     def concatenate(parts: list["Elements"]) -> "Elements":
         return Elements(**{k: np.concatenate([getattr(p, k) for p in parts]) for k in Elements.__dataclass_fields__})

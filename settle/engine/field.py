@@ -8,6 +8,7 @@ tiles, and only tiles that an element reaches exist.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
@@ -375,66 +376,83 @@ def influence_corners(elements: Elements, precision_m: float | None, radius_m: n
     return np.stack([s - d * c - nrm * c, e + d * c - nrm * c, e + d * c + nrm * c, s - d * c + nrm * c], axis=1)
 
 
-def settlement_grid(
-    elements: Elements,
-    spacing_m: float,
-    precision_m: float,
-    threshold_mm: float,
-    progress: Callable[[float], None] | None = None,
-) -> tuple[Movements, SettlementTiles, float]:
-    """Surface movements on the project grid, where the ground moves.
+@dataclass(frozen=True)
+class GridFrame:
+    """Where the grid lies: its spacing, its origin (the lower left node) and the tiles across it. [m]"""
 
-    Returns the movements at every node whose settlement reaches `threshold_mm`, the settlement tiles (for contours),
-    and the volume of the surface trough summed over all nodes [m^3].
-    """
-    h = float(spacing_m)
-    corners = influence_corners(elements, precision_m) if len(elements) else np.empty((0, 4, 2))
+    spacing_m: float
+    origin_x_m: float
+    origin_y_m: float
+    tiles_across: int
+
+
+def grid_batches(elements: Elements, spacing_m: float, precision_m: float) -> tuple[GridFrame | None, list[np.ndarray]]:
+    """The grid's frame and its batches of elements: runs of consecutive elements of one drive, each covering
+    about `PAIRS_PER_BATCH` nodes. They depend on the elements only, so the grid is summed in the same order
+    wherever its batches are evaluated. (None, []) without elements."""
     if not len(elements):
-        empty = np.empty(0)
-        return _to_movements(empty, empty, empty, {f: empty for f in FIELDS}), SettlementTiles(h, 0.0, 0.0, TILE_SIZE), 0.0
+        return None, []
+    h = float(spacing_m)
+    corners = influence_corners(elements, precision_m)
     ox = np.floor(corners[:, :, 0].min() / h) * h
     oy = np.floor(corners[:, :, 1].min() / h) * h
     ncols = int(np.ceil((corners[:, :, 0].max() - ox) / h)) + 1
-    tiles_across = ncols // TILE_SIZE + 1
-    T = TILE_SIZE
-    acc: dict[int, np.ndarray] = {}
-
-    # Batches of elements sized by the nodes they cover.
     side_a, side_b = corners[:, 1] - corners[:, 0], corners[:, 3] - corners[:, 0]
     area = np.abs(side_a[:, 0] * side_b[:, 1] - side_a[:, 1] * side_b[:, 0]) / (h * h)
-    batch_of = np.floor(np.cumsum(area) / PAIRS_PER_BATCH).astype(int)
-    for batch in np.unique(batch_of):
-        sel = np.flatnonzero(batch_of == batch)
-        owner, row, x_min, x_max = _rows_in_rectangles(corners[sel], oy, h)
-        c0 = np.ceil((x_min - ox) / h).astype(np.int64)
-        c1 = np.floor((x_max - ox) / h).astype(np.int64)
-        count = np.maximum(c1 - c0 + 1, 0)
-        run = np.repeat(np.arange(owner.size), count)
-        first = np.repeat(np.cumsum(count) - count, count)
-        col = c0[run] + (np.arange(run.size) - first)
-        r = row[run]
-        e = sel[owner[run]]
-        x = ox + col * h
-        y = oy + r * h
-        mov = _element_movements(
-            elements, e, x, y, elements.trough_width_m[e], elements.axis_depth_m[e]
-        )
-        tile = (r // T) * tiles_across + col // T
-        local = (r % T) * T + col % T
-        order = np.argsort(tile, kind="stable")
-        tile, local = tile[order], local[order]
-        bounds = np.flatnonzero(np.diff(tile)) + 1
-        for a, b in zip(np.concatenate([[0], bounds]), np.concatenate([bounds, [tile.size]])):
-            key = int(tile[a])
-            block = acc.get(key)
-            if block is None:
-                block = acc[key] = np.zeros((len(FIELDS), T * T))
-            idx = local[a:b]
-            for k, f in enumerate(FIELDS):
-                block[k] += np.bincount(idx, weights=mov[f][order[a:b]], minlength=T * T)
-        if progress:
-            progress(float(batch + 1) / (batch_of[-1] + 1))
+    batches = []
+    for drive in np.unique(elements.drive):
+        mine = np.flatnonzero(elements.drive == drive)
+        batch_of = np.floor(np.cumsum(area[mine]) / PAIRS_PER_BATCH).astype(int)
+        cuts = np.flatnonzero(np.diff(batch_of)) + 1
+        batches.extend(np.split(mine, cuts))
+    return GridFrame(h, float(ox), float(oy), ncols // TILE_SIZE + 1), batches
 
+
+def grid_batch_blocks(elements: Elements, sel: np.ndarray, frame: GridFrame, precision_m: float) -> dict:
+    """The movements of the elements `sel` summed on the nodes of each tile they reach: {tile key: (fields,
+    TILE_SIZE^2)}, the tile key counting tiles row by row from the frame's origin. [m]"""
+    h, T = frame.spacing_m, TILE_SIZE
+    corners = influence_corners(elements.take(sel), precision_m)
+    owner, row, x_min, x_max = _rows_in_rectangles(corners, frame.origin_y_m, h)
+    c0 = np.ceil((x_min - frame.origin_x_m) / h).astype(np.int64)
+    c1 = np.floor((x_max - frame.origin_x_m) / h).astype(np.int64)
+    count = np.maximum(c1 - c0 + 1, 0)
+    run = np.repeat(np.arange(owner.size), count)
+    first = np.repeat(np.cumsum(count) - count, count)
+    col = c0[run] + (np.arange(run.size) - first)
+    r = row[run]
+    e = sel[owner[run]]
+    mov = _element_movements(elements, e, frame.origin_x_m + col * h, frame.origin_y_m + r * h,
+                             elements.trough_width_m[e], elements.axis_depth_m[e])
+    tile = (r // T) * frame.tiles_across + col // T
+    local = (r % T) * T + col % T
+    order = np.argsort(tile, kind="stable")
+    tile, local = tile[order], local[order]
+    bounds = np.flatnonzero(np.diff(tile)) + 1
+    blocks = {}
+    for a, b in zip(np.concatenate([[0], bounds]), np.concatenate([bounds, [tile.size]])):
+        idx = local[a:b]
+        blocks[int(tile[a])] = np.array([np.bincount(idx, weights=mov[f][order[a:b]], minlength=T * T)
+                                         for f in FIELDS])
+    return blocks
+
+
+def grid_from_blocks(frame: GridFrame | None, batch_blocks, threshold_mm: float):
+    """The grid from the blocks of every batch, added in batch order (an iterable: each batch's blocks may be
+    dropped once added): movements at every node whose settlement reaches `threshold_mm`, the settlement tiles and
+    the volume of the surface trough [m^3]."""
+    T = TILE_SIZE
+    if frame is None:
+        empty = np.empty(0)
+        return _to_movements(empty, empty, empty, {f: empty for f in FIELDS}), SettlementTiles(0.0, 0.0, 0.0, T), 0.0
+    acc: dict[int, np.ndarray] = {}
+    for blocks in batch_blocks:
+        for key, block in blocks.items():
+            if key in acc:
+                acc[key] += block
+            else:
+                acc[key] = np.zeros((len(FIELDS), T * T)) + block
+    h, ox, oy = frame.spacing_m, frame.origin_x_m, frame.origin_y_m
     tiles = SettlementTiles(spacing_m=h, origin_x_m=ox, origin_y_m=oy, size=T)
     volume = 0.0
     parts = {f: [] for f in FIELDS}
@@ -442,7 +460,7 @@ def settlement_grid(
     grid_r, grid_c = np.divmod(np.arange(T * T), T)
     for key in sorted(acc):
         block = acc[key]
-        tr, tc = divmod(key, tiles_across)
+        tr, tc = divmod(key, frame.tiles_across)
         tiles.settlement_mm[(tr, tc)] = (block[0] * 1e3).reshape(T, T)
         volume += float(block[0].sum()) * h * h
         keep = block[0] * 1e3 >= threshold_mm
@@ -453,4 +471,31 @@ def settlement_grid(
     x = np.concatenate(xs)
     y = np.concatenate(ys)
     grid = _to_movements(x, y, np.zeros_like(x), {f: np.concatenate(parts[f]) for f in FIELDS})
+    return grid, tiles, volume
+
+
+def settlement_grid(
+    elements: Elements,
+    spacing_m: float,
+    precision_m: float,
+    threshold_mm: float,
+    progress: Callable[[float], None] | None = None,
+) -> tuple[Movements, SettlementTiles, float]:
+    """Surface movements on the project grid, where the ground moves, in this process (the orchestrator may spread
+    the same batches over workers: `grid_batches`, `grid_batch_blocks`, `grid_from_blocks`).
+
+    Returns the movements at every node whose settlement reaches `threshold_mm`, the settlement tiles (for contours),
+    and the volume of the surface trough summed over all nodes [m^3].
+    """
+    frame, batches = grid_batches(elements, spacing_m, precision_m)
+
+    def blocks():
+        for k, sel in enumerate(batches):
+            yield grid_batch_blocks(elements, sel, frame, precision_m)
+            if progress:
+                progress(float(k + 1) / len(batches))
+
+    grid, tiles, volume = grid_from_blocks(frame, blocks(), threshold_mm)
+    if frame is None:
+        tiles = SettlementTiles(float(spacing_m), 0.0, 0.0, TILE_SIZE)
     return grid, tiles, volume

@@ -244,10 +244,6 @@ def point_chainage_m(geometry: DriveResult, x, y) -> np.ndarray:
     return out[inverse.ravel()]
 
 
-def _take(elements: Elements, keep: np.ndarray) -> Elements:
-    return Elements(**{k: getattr(elements, k)[keep] for k in Elements.__dataclass_fields__})
-
-
 def _part_of(drive: Drive, keys: list, chainage_m: np.ndarray) -> np.ndarray:
     """Index into `keys` of the part of the drive each chainage lies in (as `route` assigns reach values)."""
     part = np.zeros(len(chainage_m), dtype=int)
@@ -319,10 +315,10 @@ class _DriveModel:
             part = _part_of(self.drive, self.keys, 0.5 * (el.chainage_from_m + el.chainage_to_m))
             units = {}
             for p in self.parts:
-                sub = _take(el, part == p)
+                sub = el.take(part == p)
                 sub.volume_per_m = sub.volume_per_m / self.nominal[p]  # per 1 % volume loss
                 units[p] = sub
-            pieces.append((units, _take(el, ~self.fitted[part])))
+            pieces.append((units, el.take(~self.fitted[part])))
             cuts.append(el.chainage_from_m)
         changed = self.cuts is None or any(a.shape != b.shape or np.any(a != b) for a, b in zip(cuts, self.cuts))
         self.k_ref, self.pieces, self.cuts = np.array(k, dtype=float), pieces, cuts

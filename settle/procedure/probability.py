@@ -69,6 +69,7 @@ drive with its own K and reaches).
 """
 from __future__ import annotations
 
+import copy
 import inspect
 import time
 from dataclasses import dataclass, replace
@@ -388,11 +389,19 @@ class ProbabilisticRun:
         self.timings_s: dict[str, float] = {}
         self._evaluations: dict[str, _Evaluation] = {}
 
+    def with_assets(self, buildings=None, utilities=None) -> "ProbabilisticRun":
+        """This run (the same samples, elements and K nodes) over other assets: a task's share of the buildings or
+        utilities, or none (the light copy sent to workers)."""
+        other = copy.copy(self)
+        other.project = replace(self.project, buildings=buildings, utilities=utilities, points=None)
+        other.timings_s, other._evaluations, other.warnings = {}, {}, []
+        return other
+
     # -------------------------------------------------------------------------------------------- elements
     def unit_elements(self, d: int, width_ratio: float) -> Elements:
         """The elements of drive d at its design volume loss (r = 1), trough widths times `width_ratio`."""
         keep = self.elements.drive == d
-        part = Elements(**{k: getattr(self.elements, k)[keep] for k in Elements.__dataclass_fields__})
+        part = self.elements.take(keep)
         q = np.ones(len(self.names))
         q[d] = width_ratio
         return scaled_elements(part, np.ones(len(self.names)), q)
@@ -691,11 +700,13 @@ class ProbabilisticRun:
         return SettlementPercentiles(x, y, np.asarray(depth), tuple(float(p) for p in percentiles), out)
 
     def percentile_tiles(self, tiles, percentile: float = 95.0, reach_factor: float = TILE_REACH_FACTOR,
-                         lowest_mm: float | None = None):
+                         lowest_mm: float | None = None, percentile_at: Callable | None = None):
         """The settlement tiles of a percentile over the samples (`settlement_percentiles` at the tiles' nodes), for
         contouring: every node whose design settlement is at least `lowest_mm` / `reach_factor` is evaluated, the
         others are left at zero (our choice: with the default factor 10 a node would need its percentile ten times
-        its design value to reach the lowest contour level). Returns a new SettlementTiles. [mm]"""
+        its design value to reach the lowest contour level). `percentile_at(x, y)`, when given, evaluates the
+        percentile at the nodes instead of this process (the orchestrator's workers). Returns a new SettlementTiles.
+        [mm]"""
         from dataclasses import replace as copy_with
 
         out = copy_with(tiles, settlement_mm={})
@@ -711,7 +722,10 @@ class ProbabilisticRun:
             ys.append(tiles.origin_y_m + (tr * tiles.size + rows[keep]) * tiles.spacing_m)
             where.append(keep)
         x, y = (np.concatenate(v) if v else np.empty(0) for v in (xs, ys))
-        values = self.settlement_percentiles(x, y, percentiles=(percentile,)).settlement_mm[:, 0] if len(x) else x
+        if percentile_at is None:
+            def percentile_at(x, y):
+                return self.settlement_percentiles(x, y, percentiles=(percentile,)).settlement_mm[:, 0]
+        values = percentile_at(x, y) if len(x) else x
         start = 0
         for key, keep in zip(keys, where):
             block = np.zeros(tiles.size * tiles.size)
