@@ -46,6 +46,7 @@ class Assessment:
         self.progress = progress or (lambda stage, fraction: None)
         self.workers = workers or Workers()
         self._groups = None
+        self._items = None
         self._building_parts: list = []
         self.warnings: list[str] = list(project.warnings)
         self.timings: dict[str, float] = {}
@@ -77,7 +78,8 @@ class Assessment:
         precision_m = out.precision_mm / 1e3
         frame, batches = grid_batches(self.elements, out.grid_spacing_m, precision_m)
         shared = self.workers.share((self.elements, frame, precision_m))
-        blocks = self.workers.imap(tasks.grid_task, batches, shared, progress=lambda f: self.progress("grid", f))
+        blocks = self.workers.imap(tasks.grid_task, batches, shared=shared,
+                                   progress=lambda f: self.progress("grid", f))
         grid, tiles, volume = grid_from_blocks(frame, blocks, out.grid_threshold_mm)
         if frame is None:
             tiles.spacing_m = float(out.grid_spacing_m)
@@ -100,7 +102,7 @@ class Assessment:
         if self.elements is None:
             self.route()
         field = self.workers.share(tasks.Field(tasks.without_assets(self.project), self.ground, self.elements))
-        self._building_parts = self._over_building_groups("buildings", tasks.building_task, self._building_items(),
+        self._building_parts = self._over_building_groups("buildings", tasks.building_task, [self._building_items()],
                                                           field)
         self._buildings = gather_building_results(self._building_parts, self.building_groups,
                                                   len(self.project.buildings))
@@ -119,13 +121,17 @@ class Assessment:
         return self._groups
 
     def _building_items(self) -> list:
-        from .envelope import subset_table
+        """The buildings of each task, placed on the workers once for the buildings, envelope and probability."""
+        if self._items is None:
+            from .envelope import subset_table
 
-        return [subset_table(self.project.buildings, rows) for rows in self.building_groups]
+            self._items = self.workers.place([subset_table(self.project.buildings, rows)
+                                              for rows in self.building_groups])
+        return self._items
 
-    def _over_building_groups(self, stage: str, task, items: list, shared) -> list:
+    def _over_building_groups(self, stage: str, task, columns: list, shared) -> list:
         self.progress(stage, 0.0)
-        return self.workers.map(task, items, shared, progress=lambda f: self.progress(stage, f))
+        return self.workers.map(task, *columns, shared=shared, progress=lambda f: self.progress(stage, f))
 
     def utilities(self) -> "Assessment":
         """Strains, joint rotations and openings of every buried pipe in [utilities], and their verdicts."""
@@ -161,10 +167,10 @@ class Assessment:
         if p.buildings is not None:
             # With no face given the run's stage is completion: its building results serve the envelope as they are.
             at_completion = all(d.face_chainage_m is None for d in p.drives) and self._building_parts
-            completion = self._building_parts if at_completion else [None] * len(self.building_groups)
+            completion = ([tasks.AtCompletion.of(r) for r in self._building_parts] if at_completion
+                          else [None] * len(self.building_groups))
             found = self._over_building_groups("envelope", tasks.building_envelope_task,
-                                               list(zip(self._building_items(), completion)),
-                                               self.workers.share(sequence))
+                                               [self._building_items(), completion], self.workers.share(sequence))
             self._building_envelope = gather_rows(found, self.building_groups, len(p.buildings))
         if p.utilities is not None:
             self._utility_envelope = utility_envelope(sequence, p.utilities, p.utility_options)
@@ -189,7 +195,7 @@ class Assessment:
         buildings = None
         if self.project.buildings is not None:
             found = self._over_building_groups("probability", tasks.building_probability_task,
-                                               self._building_items(), light)
+                                               [self._building_items()], light)
             buildings = gather_rows(found, self.building_groups, len(self.project.buildings))
         utilities = run.utilities() if self.project.utilities is not None else None
         grid = self._result.grid
@@ -210,7 +216,7 @@ class Assessment:
         """Settlement percentiles at surface places (n, len(percentiles)), in tasks of `NODES_PER_TASK` places. [mm]"""
         xy = np.column_stack([x, y])
         items = [xy[a:a + NODES_PER_TASK] for a in range(0, len(xy), NODES_PER_TASK)]
-        found = self.workers.map(tasks.percentile_task, items, (run, tuple(percentiles)))
+        found = self.workers.map(tasks.percentile_task, items, shared=(run, tuple(percentiles)))
         return np.concatenate(found) if found else np.empty((0, len(percentiles)))
 
     def face(self) -> "Assessment":
@@ -283,7 +289,7 @@ def face_checks(project: Project, ground: GroundModel, drives, progress, warning
     where = project.path.name if project.path else "project"
     shared = workers.share((tasks.without_assets(project), ground, where))
     progress("face support", 0.0)
-    checks = workers.map(tasks.face_task, list(zip(drives, project.drives)), shared,
+    checks = workers.map(tasks.face_task, drives, project.drives, shared=shared,
                          progress=lambda f: progress("face support", f))
     for stations in checks:
         warnings.extend(stations.warnings)

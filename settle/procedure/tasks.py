@@ -47,12 +47,23 @@ def building_task(buildings, shared: Field):
     return assess_buildings(buildings, shared.movements_at, shared.project.building_options)
 
 
-def building_envelope_task(item, sequence):
-    """The envelope of the buildings of one task over the construction sequence; item = (buildings, their
-    results at completion or None)."""
+@dataclass
+class AtCompletion:
+    """What the envelope reads of the building results at completion (`BuildingResults` fields of one name)."""
+
+    category: np.ndarray
+    max_settlement_mm: np.ndarray
+
+    @classmethod
+    def of(cls, results) -> "AtCompletion":
+        return cls(results.category, results.max_settlement_mm)
+
+
+def building_envelope_task(buildings, completion: AtCompletion | None, sequence):
+    """The envelope of the buildings of one task over the construction sequence, with their results at
+    completion when the run has them."""
     from .envelope import building_envelope
 
-    buildings, completion = item
     return building_envelope(sequence, buildings, sequence.project.building_options, completion=completion)
 
 
@@ -68,12 +79,11 @@ def percentile_task(xy: np.ndarray, shared) -> np.ndarray:
     return run.settlement_percentiles(xy[:, 0], xy[:, 1], percentiles=percentiles).settlement_mm
 
 
-def face_task(item, shared):
-    """The face support window along one drive; item = (its geometry, its design drive); shared = (project, ground,
+def face_task(geometry, drive, shared):
+    """The face support window along one drive, from its geometry and its design drive; shared = (project, ground,
     file name for messages)."""
     from ..assessments.face_stations import face_stations
 
-    geometry, drive = item
     project, ground, where = shared
     return face_stations(geometry, ground, project.strengths, project.rivers, project.face, drive.face_support,
                          where, design_drive=drive)

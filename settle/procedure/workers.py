@@ -1,7 +1,7 @@
 """Where a run's work is done: in this process, on a local Dask cluster, or on a cluster the user started.
 
     with Workers(count=2) as workers:           # settle run ... --workers 2
-        blocks = workers.map(grid_batch, batches, shared=workers.share(state))
+        blocks = workers.map(grid_task, batches, shared=workers.share(state))
 
 `Workers()` runs every task here, one after the other. `Workers(count=N)` starts a `dask.distributed.LocalCluster`
 of N worker processes, one thread each (the engine's numpy work holds the GIL between its calls, so processes, not
@@ -23,6 +23,13 @@ from ..version import __version__
 
 #: How long to wait for a scheduler given with --scheduler before giving up. [s]
 CONNECT_TIMEOUT_S = 10.0
+#: Large arrays from the heap, not from a fresh mapping each time. Dask's nanny sets MALLOC_TRIM_THRESHOLD_ in its
+#: workers, which turns off glibc's adaptive mmap threshold: every array over 128 KiB was then mapped and unmapped,
+#: and the tasks of a run took 1.6 to 2.3 times as long as in one process (measured on the envelope's tasks, 4 000
+#: buildings); with this they take 1.1 times as long. Workers started by hand get the same with this variable set
+#: in their environment (README).
+MMAP_THRESHOLD_BYTES = 2**30
+WORKER_ENVIRONMENT = {"distributed.nanny.pre-spawn-environ.MALLOC_MMAP_THRESHOLD_": MMAP_THRESHOLD_BYTES}
 
 
 class Workers:
@@ -74,8 +81,11 @@ class Workers:
                                  "its workers with `dask worker ADDRESS`") from None
             self._check_workers()
         else:
-            self._cluster = LocalCluster(n_workers=self.count, threads_per_worker=1, processes=True,
-                                         dashboard_address=None, silence_logs=logging.ERROR)
+            import dask.config
+
+            with dask.config.set(WORKER_ENVIRONMENT):
+                self._cluster = LocalCluster(n_workers=self.count, threads_per_worker=1, processes=True,
+                                             dashboard_address=None, silence_logs=logging.ERROR)
             self._client = Client(self._cluster)
         return self
 
@@ -118,29 +128,37 @@ class Workers:
             return value
         return self._client.scatter(value, broadcast=True, hash=False)
 
-    def map(self, function: Callable, items: Sequence, shared: Any = None,
-            progress: Callable[[float], None] | None = None) -> list:
-        """[function(item, shared) for item in items], in the order of `items`; on the workers when distributed.
-        An error in a task (an InputError among them) is raised here as it was raised there."""
-        return list(self.imap(function, items, shared, progress))
+    def place(self, items: Sequence) -> list:
+        """Each item sent to one worker, once, for the tasks of several steps to use where it lies (Dask futures);
+        the items themselves here."""
+        if self._client is None:
+            return list(items)
+        return self._client.scatter(list(items), hash=False)
 
-    def imap(self, function: Callable, items: Sequence, shared: Any = None,
+    def map(self, function: Callable, *iterables: Sequence, shared: Any = None,
+            progress: Callable[[float], None] | None = None) -> list:
+        """[function(*args, shared) for args in zip(*iterables)], in order; on the workers when distributed.
+        An error in a task (an InputError among them) is raised here as it was raised there."""
+        return list(self.imap(function, *iterables, shared=shared, progress=progress))
+
+    def imap(self, function: Callable, *iterables: Sequence, shared: Any = None,
              progress: Callable[[float], None] | None = None) -> Iterator:
-        """As `map`, one result at a time in the order of `items`, so the caller can add each into a total and drop
-        it (the workers go on with the rest meanwhile)."""
-        items = list(items)
+        """As `map`, one result at a time in order, so the caller can add each into a total and drop it (the
+        workers go on with the rest meanwhile)."""
+        columns = [list(items) for items in iterables]
+        n = len(columns[0])
         tell = progress or (lambda fraction: None)
         if self._client is None:
-            for k, item in enumerate(items):
-                yield function(item, shared)
-                tell((k + 1) / len(items))
+            for k, args in enumerate(zip(*columns)):
+                yield function(*args, shared)
+                tell((k + 1) / n)
             return
-        futures = self._client.map(function, items, [shared] * len(items), pure=False)
+        futures = self._client.map(function, *columns, [shared] * n, pure=False)
         try:
             for k, future in enumerate(futures):
                 yield future.result()
                 future.release()
-                tell((k + 1) / len(items))
+                tell((k + 1) / n)
         finally:
             for future in futures:
                 future.release()
