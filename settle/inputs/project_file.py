@@ -21,9 +21,13 @@ the project's vertical datum, up positive)
     crs                 text "EPSG:nnnn", required: a projected CRS whose axes are in metres (a geographic CRS or
                         one in feet is an error). Every coordinate of the project is in it.
 [ground]
-    surface_level_m     number, flat ground surface level. Give this or surface_points, not both.
+    surface_level_m     number, flat ground surface level. Give exactly one of surface_level_m, surface_points
+                        and surface_raster.
     surface_points      path to a CSV with columns x, y, z [m]: at least 3 points not on one line; the surface is
                         triangulated through them.
+    surface_raster      path to a single-band GeoTIFF DEM of ground levels [m], with its CRS (transformed to the
+                        project's when it differs); sampled bilinearly between cell centres; nodata along a route,
+                        or a route off the raster, is an error naming the chainages.
     groundwater_level_m number, required.
 [[ground.layers]]       at least one, listed from the top down; each runs down to the next layer's top.
     name                text, required.
@@ -35,18 +39,25 @@ the project's vertical datum, up positive)
     name                text, required, unique among the drives.
     alignment           path, required: a CSV (columns x, y and exactly one of z = axis level, invert_z = invert
                         level of the bore, depth_m = depth of the axis below the surface), or a GIS line layer with
-                        Z (.gpkg, .geojson, .json, .shp), vertices from the launch shaft to the reception shaft.
+                        Z (.gpkg, .geojson, .json, .shp), vertices from the launch shaft to the reception shaft; or
+                        a LandXML 1.2 alignment (.xml) in the project CRS: lines, arcs and clothoids with its
+                        profile, sampled so that no chord departs from the curve by more than 5 mm.
     outer_diameter_m    number from 0.1 to 10, required: excavated diameter.
     volume_loss_pct     number more than 0 and at most 20, required.
     face_chainage_m     number, optional: chainage of the face, at least start_chainage_m; absent = drive complete.
     inner_diameter_m    number, optional, more than 0 and less than outer_diameter_m; required when the
                         alignment gives invert levels.
     trough_width_k      number from 0.1 to 1.5, optional: overrides the layers' K for this drive.
-    start_chainage_m    number, default 0: chainage of the first vertex.
+    start_chainage_m    number, default 0 (a LandXML alignment: its staStart): chainage of the first vertex.
     alignment_layer     text, optional (GIS only): layer to read; needed when the file has several layers.
     alignment_feature   text, optional (GIS only): value of the `name` attribute of the line to use; needed when
                         the layer holds several lines.
-    alignment_z         "axis" (default) | "invert" | "depth", optional (GIS only): what the line's Z is.
+    alignment_z         "axis" (default) | "invert" | "depth", optional (GIS and LandXML; LandXML "axis" or
+                        "invert"): what the line's Z, or the LandXML profile's level, is.
+    alignment_name      text, optional (LandXML only): the `name` of the <Alignment> to read; needed when the file
+                        holds several.
+    alignment_profile   text, optional (LandXML only): the `name` of the <ProfAlign> to use; needed when the
+                        alignment has several design profiles.
 [[drives.reaches]]      optional, per drive: parts of the drive with their own volume loss; must not overlap.
     from_chainage_m     number, required.
     to_chainage_m       number, required, more than from_chainage_m.
@@ -136,13 +147,22 @@ from .tables import (COORDINATE_RANGE, DEPTH_LIMIT_M, GIS_SUFFIXES, LEVEL_RANGE,
 TOP_KEYS = ("project", "ground", "drives", "points", "output", "rivers", "face", "utilities", "buildings",
             "monitoring", "construction", "report", "uncertainty")
 PROJECT_KEYS = ("name", "crs")
-GROUND_KEYS = ("surface_level_m", "surface_points", "groundwater_level_m", "layers")
+GROUND_KEYS = ("surface_level_m", "surface_points", "surface_raster", "groundwater_level_m", "layers")
+SURFACE_KEYS = ("surface_level_m", "surface_points", "surface_raster")
 LAYER_KEYS = ("name", "top_level_m", "unit_weight_kn_m3", "trough_width_k", "behaviour")
 STRENGTH_KEYS = ("friction_angle_deg", "cohesion_kpa", "undrained_strength_kpa", "shear_modulus_mpa", "k0")
 DRIVE_KEYS = ("name", "alignment", "outer_diameter_m", "volume_loss_pct", "face_chainage_m", "inner_diameter_m",
-              "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z", "reaches",
+              "trough_width_k", "start_chainage_m", "alignment_layer", "alignment_feature", "alignment_z",
+              "alignment_name", "alignment_profile", "reaches",
               "face_support", *DRIVE_DISTRIBUTION_KEYS)
 GIS_ONLY_KEYS = ("alignment_layer", "alignment_feature", "alignment_z")
+LANDXML_KEYS = ("alignment_name", "alignment_profile", "alignment_z")
+LANDXML_SUFFIXES = (".xml",)
+#: The keys that apply to one kind of alignment file only, and that kind, for messages.
+ALIGNMENT_FILE_KEYS = {"alignment_layer": "a GIS alignment", "alignment_feature": "a GIS alignment",
+                       "alignment_z": "a GIS or LandXML alignment", "alignment_name": "a LandXML alignment",
+                       "alignment_profile": "a LandXML alignment"}
+START_MATCH_M = 0.001  # a start_chainage_m given beside a LandXML alignment must be its staStart to this [m]
 REACH_KEYS = ("from_chainage_m", "to_chainage_m", "volume_loss_pct", "trough_width_k")
 SUPPORT_KEYS = ("from_chainage_m", "to_chainage_m", "mode")
 RIVER_KEYS = ("name", "drive", "from_chainage_m", "to_chainage_m", "bed_level_m", "water_level_m")
@@ -196,7 +216,7 @@ def load_project(path) -> Project:
     title = _text(head, "name", where)
     crs = _crs(head, where, warnings)
 
-    ground = _ground(_table(doc, "ground", name), name, files)
+    ground = _ground(_table(doc, "ground", name), name, files, crs)
     drives = _drives(doc, name, files, crs, warnings)
     points = None
     if "points" in doc:
@@ -447,17 +467,22 @@ def _crs(table: dict, where: str, warnings: list[str]) -> str:
     return code
 
 
-def _ground(table: dict, file: str, files: _Files) -> Ground:
+def _ground(table: dict, file: str, files: _Files, crs: str) -> Ground:
     """[ground] and its [[ground.layers]]."""
     where = f"{file} [ground]"
     _check_keys(table, GROUND_KEYS, where)
-    if ("surface_level_m" in table) == ("surface_points" in table):
-        given = "both" if "surface_level_m" in table else "neither"
-        raise InputError(f"{where}: give exactly one of surface_level_m (flat ground) or surface_points "
-                         f"(CSV of x, y, z); got {given}")
+    given = [k for k in SURFACE_KEYS if k in table]
+    if len(given) != 1:
+        raise InputError(f"{where}: give exactly one of surface_level_m (flat ground), surface_points (CSV of x, y, "
+                         f"z) or surface_raster (a GeoTIFF DEM); got {' and '.join(given) if given else 'none'}")
     if "surface_level_m" in table:
         surface = Surface(level_m=_number(table, "surface_level_m", where, **LEVEL_RANGE),
                           source=f"{where} surface_level_m")
+    elif "surface_raster" in table:
+        from .dem_surface import read_dem
+
+        path = _path(table, "surface_raster", where, files)
+        surface = Surface(raster=read_dem(path, crs, f"{where} surface_raster"), source=str(path))
     else:
         surface = read_surface_points(_path(table, "surface_points", where, files))
     water = _number(table, "groundwater_level_m", where, **LEVEL_RANGE)
@@ -502,13 +527,13 @@ def _drive(table: dict, where: str, files: _Files, crs: str, warnings: list[str]
     name = _text(table, "name", where)
     outer = _number(table, "outer_diameter_m", where, ge=0.1, le=10.0)
     inner = _number(table, "inner_diameter_m", where, required=False, gt=0.0, lt=outer)
-    start = _number(table, "start_chainage_m", where, required=False, default=0.0, **COORDINATE_RANGE)
+    given_start = _number(table, "start_chainage_m", where, required=False, **COORDINATE_RANGE)
+    alignment, start = _alignment(table, where, files, crs, given_start)
     face = _chainage_after(table, "face_chainage_m", where, ge=start, required=False)
     volume_loss = _number(table, "volume_loss_pct", where, **VOLUME_LOSS_RANGE)
     k = _number(table, "trough_width_k", where, required=False, **K_RANGE)
     reaches = _reaches(table, where)
     support = _face_support(table, where, name)
-    alignment = _alignment(table, where, files, crs)
     warnings.extend(alignment.warnings)
     if alignment.vertical == "invert" and inner is None:
         raise InputError(f"{where}: the alignment gives invert levels ({alignment.source}); inner_diameter_m is "
@@ -527,24 +552,41 @@ def _chainage_after(table: dict, key: str, where: str, *, required: bool = True,
     return value if value is None else _number(table, key, where, **COORDINATE_RANGE)
 
 
-def _alignment(table: dict, where: str, files: _Files, crs: str) -> Alignment:
-    """The drive's alignment file, CSV or GIS by its suffix; GIS-only keys with a CSV are an error."""
+def _alignment(table: dict, where: str, files: _Files, crs: str, given_start: float | None) -> tuple[Alignment, float]:
+    """The drive's alignment file, CSV, GIS or LandXML by its suffix, and the chainage of its first vertex
+    (start_chainage_m, default 0; a LandXML alignment's staStart). Keys of another kind of file are an error."""
     path = _path(table, "alignment", where, files)
     suffix = path.suffix.lower()
-    if suffix == ".csv":
-        for key in GIS_ONLY_KEYS:
-            if key in table:
-                raise InputError(f"{where}: {key} applies only to a GIS alignment ({', '.join(GIS_SUFFIXES)}); "
-                                 f"{path.name} is a CSV, whose vertical column (z, invert_z or depth_m) says what "
-                                 "its values are")
-        return read_alignment_csv(path)
-    if suffix in GIS_SUFFIXES:
-        return read_alignment_gis(path, crs, z_means=_text(table, "alignment_z", where, required=False,
-                                                            choices=VERTICAL_REFERENCES, default="axis"),
-                                  layer=_text(table, "alignment_layer", where, required=False),
-                                  feature=_text(table, "alignment_feature", where, required=False))
-    raise InputError(f"{where}: alignment must be a .csv file or a GIS line layer ({', '.join(GIS_SUFFIXES)}); "
-                     f"got {shown(table['alignment'])}")
+    kind = ("csv" if suffix == ".csv" else "gis" if suffix in GIS_SUFFIXES else
+            "landxml" if suffix in LANDXML_SUFFIXES else None)
+    if kind is None:
+        raise InputError(f"{where}: alignment must be a .csv file, a GIS line layer ({', '.join(GIS_SUFFIXES)}) or "
+                         f"a LandXML file (.xml); got {shown(table['alignment'])}")
+    allowed = {"csv": (), "gis": GIS_ONLY_KEYS, "landxml": LANDXML_KEYS}[kind]
+    for key in ALIGNMENT_FILE_KEYS:
+        if key in table and key not in allowed:
+            what = {"csv": "a CSV, whose vertical column (z, invert_z or depth_m) says what its values are",
+                    "gis": "a GIS layer", "landxml": "a LandXML file"}[kind]
+            raise InputError(f"{where}: {key} applies only to {ALIGNMENT_FILE_KEYS[key]}; {path.name} is {what}")
+    if kind == "landxml":
+        from .landxml import read_alignment_landxml
+
+        alignment, sta_start = read_alignment_landxml(
+            path, name=_text(table, "alignment_name", where, required=False),
+            z_means=_text(table, "alignment_z", where, required=False, choices=("axis", "invert"), default="axis"),
+            profile=_text(table, "alignment_profile", where, required=False))
+        if given_start is not None and abs(given_start - sta_start) > START_MATCH_M:
+            raise InputError(f"{where}: start_chainage_m = {given_start:g} but the LandXML alignment starts at "
+                             f"station {sta_start:.3f} ({alignment.source}); leave start_chainage_m out to take "
+                             "the alignment's")
+        return alignment, sta_start
+    start = 0.0 if given_start is None else given_start
+    if kind == "csv":
+        return read_alignment_csv(path), start
+    return read_alignment_gis(path, crs, z_means=_text(table, "alignment_z", where, required=False,
+                                                        choices=VERTICAL_REFERENCES, default="axis"),
+                              layer=_text(table, "alignment_layer", where, required=False),
+                              feature=_text(table, "alignment_feature", where, required=False)), start
 
 
 def _drive_items(drive: dict, key: str, allowed, where: str):
