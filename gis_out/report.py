@@ -235,6 +235,12 @@ def project_inputs(project) -> dict:
     surface = project.ground.surface
     if surface.level_m is not None:
         surf = {"kind": "flat", "level_m": surface.level_m, "key": "[ground] surface_level_m"}
+    elif surface.raster is not None:
+        rows, cols = surface.raster.levels_m.shape
+        a, b, _, d, e, _ = surface.raster.transform
+        surf = {"kind": "dem", "file": _name(surface.source, folder), "cells": [int(cols), int(rows)],
+                "cell_size_m": [abs(a) if b == 0 else float(np.hypot(a, d)), abs(e) if d == 0 else float(np.hypot(b, e))],
+                "crs_note": surface.raster.crs_note, "key": "[ground] surface_raster"}
     else:
         surf = {"kind": "survey", "file": _name(surface.source, folder), "points": int(len(surface.points_xyz)),
                 "key": "[ground] surface_points"}
@@ -386,15 +392,25 @@ def _reach_blocks(inputs: dict) -> list[Block]:
     return b
 
 
+def _surface_text(surf: dict) -> str:
+    """The ground surface in one sentence: flat, triangulated survey points, or a DEM."""
+    if surf["kind"] == "flat":
+        return "Ground surface: flat at {:.2f} m ({}).".format(surf["level_m"], surf["key"])
+    if surf["kind"] == "dem":
+        cols, rows = surf["cells"]
+        dx, dy = surf["cell_size_m"]
+        note = f", {surf['crs_note']}" if surf["crs_note"] else ""
+        return (f"Ground surface: the DEM {surf['file']} ({cols} x {rows} cells of {dx:g} x {dy:g}, levels "
+                f"interpolated bilinearly between cell centres{note}; {surf['key']}).")
+    return f"Ground surface: triangulated through {surf['points']} survey points in {surf['file']} ({surf['key']})."
+
+
 def _ground_blocks(inputs: dict) -> list[Block]:
     """1.3: the ground surface, the groundwater level, the ground layers and their parameters, and the rivers."""
     b = [Block("subheading", "1.3 Ground and water")]
     g = inputs["ground"]
     surf = g["surface"]
-    b.append(Block("text", ("Ground surface: flat at {:.2f} m ({}).".format(surf["level_m"], surf["key"])
-                            if surf["kind"] == "flat" else
-                            f"Ground surface: triangulated through {surf['points']} survey points in {surf['file']} "
-                            f"({surf['key']}).") +
+    b.append(Block("text", _surface_text(surf) +
                    f" Groundwater level {g['groundwater_level_m']:.2f} m ({g['groundwater_key']})."))
     rows = [{"key": ly["key"].replace("[[ground.layers]] ", ""), "name": ly["name"], "top m": ly["top_level_m"],
              "gamma kN/m3": ly["unit_weight_kn_m3"], "K": ly["trough_width_k"], "behaviour": ly["behaviour"],

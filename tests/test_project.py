@@ -299,7 +299,7 @@ def test_gis_feature_errors(site, geometry, attributes, extra, pattern):
 
 def test_gis_only_keys_with_a_csv_alignment(site):
     path = edit(site, 'alignment = "west.csv"', 'alignment = "west.csv"\nalignment_z = "depth"')
-    fails(path, r'\[\[drives\]\] #1 "West": alignment_z applies only to a GIS alignment')
+    fails(path, r'\[\[drives\]\] #1 "West": alignment_z applies only to a GIS or LandXML alignment; west\.csv is a CSV')
 
 
 def test_gis_vertex_errors_name_the_vertex(site):
@@ -413,9 +413,9 @@ def test_crs_must_be_projected_in_metres(site, crs, pattern):
 def test_surface_level_xor_surface_points(site):
     (site / "surface.csv").write_text("x,y,z\n0,0,20\n100,0,21\n0,100,19.5\n")
     fails(edit(site, "surface_level_m = 20.0", 'surface_level_m = 20.0\nsurface_points = "surface.csv"'),
-          r"\[ground\]: give exactly one of surface_level_m .* got both")
+          r"\[ground\]: give exactly one of surface_level_m .* got surface_level_m and surface_points")
     fails(edit(site, 'surface_level_m = 20.0\nsurface_points = "surface.csv"', ""),
-          r"\[ground\]: give exactly one of surface_level_m .* got neither")
+          r"\[ground\]: give exactly one of surface_level_m .* got none")
 
 
 @pytest.mark.parametrize("csv_text, pattern", [
@@ -449,7 +449,7 @@ def test_invert_levels_need_the_inner_diameter(site):
 def test_alignment_suffix_must_be_known(site):
     (site / "west.txt").write_text(WEST_CSV)
     fails(edit(site, 'alignment = "west.csv"', 'alignment = "west.txt"'),
-          r'alignment must be a \.csv file or a GIS line layer .*got "west\.txt"')
+          r'alignment must be a \.csv file, a GIS line layer .* or a LandXML file \(\.xml\); got "west\.txt"')
 
 
 # ------------------------------------------------------------------------------------------------ CSV errors

@@ -343,7 +343,7 @@ def _place_stations(drive: DriveResult, ground: GroundModel, mine, options: Face
     if np.isnan(ground_level).any():
         k = int(np.argmax(np.isnan(ground_level)))
         raise InputError(f'{where} [[drives]] "{drive.name}": station at chainage {st[k]:.1f} m is outside the '
-                         f"ground surface ({ground.ground.surface.source}); extend the surface points")
+                         f"ground surface ({ground.ground.surface.source}); extend the surface points or the DEM to cover the route")
     return st, x, y, axis, ground_level
 
 

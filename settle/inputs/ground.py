@@ -1,4 +1,4 @@
-"""The ground: its surface (flat or triangulated), its layers, and what the trough models need from them."""
+"""The ground: its surface (flat, triangulated or a DEM), its layers, and what the trough models need from them."""
 from __future__ import annotations
 
 import numpy as np
@@ -19,7 +19,10 @@ class GroundModel:
     def __init__(self, ground: Ground):
         self.ground = ground
         surface = ground.surface
-        if surface.points_xyz is None:
+        self.flat_level_m = None
+        if surface.raster is not None:
+            self._interpolate = surface.raster.level_at
+        elif surface.points_xyz is None:
             self._interpolate = None
             self.flat_level_m = float(surface.level_m)
         else:
@@ -32,7 +35,6 @@ class GroundModel:
                     f"(are they all on one line?): {str(exc).splitlines()[0]}"
                 ) from None
             self._interpolate = LinearNDInterpolator(triangulation, pts[:, 2])
-            self.flat_level_m = None
         layers = ground.layers
         self._tops = np.array([layer.top_level_m for layer in layers], dtype=float)
         self._k = np.array([layer.trough_width_k for layer in layers], dtype=float)
@@ -43,7 +45,8 @@ class GroundModel:
         self._bottoms = np.append(self._tops[1:], -np.inf)
 
     def surface_level(self, x, y):
-        """Ground surface level at plan positions; NaN outside a triangulated surface. [m]"""
+        """Ground surface level at plan positions; NaN outside a triangulated surface, and outside a DEM or on its
+        nodata. [m]"""
         x = np.asarray(x, dtype=float)
         if self._interpolate is None:
             return np.full(np.shape(x), self.flat_level_m)

@@ -30,15 +30,17 @@ class Layer:
 
 @dataclass(frozen=True)
 class Surface:
-    """Ground surface: flat at `level_m`, or triangulated through `points_xyz` (n x 3, m)."""
+    """Ground surface: flat at `level_m`, triangulated through `points_xyz` (n x 3, m), or a DEM `raster`
+    (settle.inputs.dem_surface.DemSurface)."""
 
     level_m: float | None = None
     points_xyz: np.ndarray | None = None
     source: str = ""  # where it came from, for messages
+    raster: object | None = None
 
     def __post_init__(self):
-        if (self.level_m is None) == (self.points_xyz is None):
-            raise ValueError("Surface needs exactly one of level_m or points_xyz")
+        if sum(v is not None for v in (self.level_m, self.points_xyz, self.raster)) != 1:
+            raise ValueError("Surface needs exactly one of level_m, points_xyz or raster")
 
 
 @dataclass(frozen=True)

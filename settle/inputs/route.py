@@ -155,9 +155,8 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="", rivers=()) -
     if np.isnan(surface).any() or np.isnan(xyz[:, 2]).any():
         k = int(np.flatnonzero(np.isnan(surface) | np.isnan(xyz[:, 2]))[0])
         raise InputError(
-            f"{label}: the alignment leaves the triangulated ground surface ({ground.ground.surface.source}) "
-            f"at chainage {chain[k]:.1f} m (vertex {k + 1}, x={xyz[k, 0]:.1f}, y={xyz[k, 1]:.1f}); "
-            "extend surface_points to cover the whole route"
+            f"{label}: the alignment leaves {_surface_words(ground)} at chainage {chain[k]:.1f} m (vertex {k + 1}, "
+            f"x={xyz[k, 0]:.1f}, y={xyz[k, 1]:.1f}); {_surface_hint(ground)}"
         )
 
     # Check cover at regular stations too: a triangulated surface may dip between vertices.
@@ -167,6 +166,11 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="", rivers=()) -
                               PROFILE_SPACING_M)
     at = position_at(xyz, chain, stations)
     s_level = ground.surface_level(at[:, 0], at[:, 1])
+    if np.isnan(s_level).any():
+        runs = _runs(stations, np.isnan(s_level))
+        where = ", ".join(f"{a:.1f}-{b:.1f} m" if b > a else f"{a:.1f} m" for a, b in runs[:6])
+        raise InputError(f"{label}: {_surface_words(ground)} has no level under the route at chainage {where}"
+                         f"{' ...' if len(runs) > 6 else ''}; {_surface_hint(ground)}")
     cover = s_level - at[:, 2] - drive.outer_diameter_m / 2.0
     if np.nanmin(cover) <= 0.0:
         k = int(np.nanargmin(cover))
@@ -206,6 +210,19 @@ def build_drive(drive: Drive, ground: GroundModel, project_file="", rivers=()) -
         profile_surface_m=_surface_under(mine, stations, s_level),
     )
     return result, _cover_warnings(result)
+
+
+def _surface_words(ground: GroundModel) -> str:
+    """The ground surface model in words, with where it came from, for messages."""
+    surface = ground.ground.surface
+    kind = "the DEM" if surface.raster is not None else "the triangulated ground surface"
+    return f"{kind} ({surface.source})"
+
+
+def _surface_hint(ground: GroundModel) -> str:
+    if ground.ground.surface.raster is not None:
+        return "the DEM ends or has nodata there; give a DEM that covers the whole route with valid levels"
+    return "extend surface_points to cover the whole route"
 
 
 def _cover_warnings(d: DriveResult) -> list[str]:

@@ -16,7 +16,7 @@ from ..errors import InputError
 
 #: Keys whose text value is a path relative to the project file; any other text value naming an existing file
 #: beside the project file is taken to be a path too (keys added to the project file later).
-PATH_KEYS = ("surface_points", "alignment", "file")
+PATH_KEYS = ("surface_points", "surface_raster", "alignment", "file")
 _HEADER = re.compile(r"^\s*(\[\[?)\s*([A-Za-z0-9_.\-]+)\s*\]\]?\s*(#.*)?$")
 _NUMBER = re.compile(r"^(?P<head>\s*(?P<key>volume_loss_pct|trough_width_k)\s*=\s*)(?P<value>[^#\s]+)"
                      r"(?P<rest>\s*(?:#(?P<comment>.*))?)$")
