@@ -141,6 +141,10 @@ def _write_layers(result: Result, layers: dict, out: Path, stem: str, run_date: 
 
         tif = write_settlement_geotiff(result.tiles, result.project.crs, out / f"{stem}-settlement.tif")
         outputs["settlement_geotiff"] = tif.name
+    if result.project.output.dxf:
+        from .dxf_drawing import write_dxf
+
+        outputs["dxf"] = write_dxf(out / f"{stem}.dxf", layers, result.drives, levels_mm=levels).name
     return outputs
 
 

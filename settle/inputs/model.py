@@ -102,7 +102,8 @@ class Output:
     contour_levels_mm: tuple[float, ...]
     grid_threshold_mm: float = 0.1  # grid keeps every node whose settlement reaches this
     precision_mm: float = 0.001  # contributions smaller than this are not evaluated (see DEVELOPERS.md)
-    settlement_geotiff: bool = False  # also write <stem>-settlement.tif (needs the raster extra)
+    settlement_geotiff: bool = False  # also write <stem>-settlement.tif
+    dxf: bool = False  # also write <stem>.dxf, the drawing for CAD (gis_out.dxf_drawing)
     sections_chainage_m: tuple[float, ...] = ()  # transverse sections of the report; () = where settlement peaks
     input_size_limit_mb: float = DEFAULT_INPUT_SIZE_LIMIT_MB  # largest input file read [MB]
     memory_limit_mb: float | None = None  # largest memory a run may plan to use [MB]; None = from this machine

@@ -75,6 +75,8 @@ the project's vertical datum, up positive)
                         every file the project names (a shapefile with its .shx, .dbf, .prj, .cpg) must be no larger.
     memory_limit_mb     number more than 0 and at most 10 000 000, optional: the largest memory a run may plan to use
                         [MB]; default: half of this machine's available memory.
+    settlement_geotiff  true / false, default false: also write <stem>-settlement.tif.
+    dxf                 true / false, default false: also write <stem>.dxf, the drawing for CAD (DXF R2013).
 
 [construction]          optional: the construction envelope (settle.procedure.envelope).
     sequence            list of drive names in driving order, each drive once; default: the order of [[drives]].
@@ -176,7 +178,7 @@ MONITORING_KEYS = ("amber_mm", "red_mm")
 UTILITY_KEYS = ("file", "layer", "vertical", "sample_spacing_m", "curvature_step_m", "near_limit_fraction")
 POINTS_KEYS = ("file",)
 OUTPUT_KEYS = ("grid_spacing_m", "contour_levels_mm", "grid_threshold_mm", "precision_mm", "settlement_geotiff",
-               "sections_chainage_m", "input_size_limit_mb", "memory_limit_mb")
+               "sections_chainage_m", "input_size_limit_mb", "memory_limit_mb", "dxf")
 #: Tables and arrays nested deeper than this are refused (a project file needs four levels at most).
 MAX_TOML_DEPTH = 32
 
@@ -633,6 +635,9 @@ def _output(table: dict, where: str, size_limit_mb: float) -> Output:
     if geotiff and importlib.util.find_spec("rasterio") is None:
         raise InputError(f"{where}: settlement_geotiff = true needs rasterio; install it with "
                          'pip install -e ".[raster]" or set settlement_geotiff = false')
+    dxf = table.get("dxf", False)
+    if not isinstance(dxf, bool):
+        raise InputError(f"{where}: dxf must be true or false; got {shown(dxf)}")
     sections = ()
     if "sections_chainage_m" in table:
         value = table["sections_chainage_m"]
@@ -642,7 +647,7 @@ def _output(table: dict, where: str, size_limit_mb: float) -> Output:
         sections = tuple(_number({f"sections_chainage_m item {j}": v}, f"sections_chainage_m item {j}", where,
                                  **COORDINATE_RANGE) for j, v in enumerate(value, start=1))
     return Output(grid_spacing_m=spacing, contour_levels_mm=levels, grid_threshold_mm=threshold,
-                  precision_mm=precision, settlement_geotiff=geotiff, sections_chainage_m=sections,
+                  precision_mm=precision, settlement_geotiff=geotiff, dxf=dxf, sections_chainage_m=sections,
                   input_size_limit_mb=size_limit_mb,
                   memory_limit_mb=_number(table, "memory_limit_mb", where, required=False, gt=0.0,
                                                  le=MAX_LIMIT_MB))
