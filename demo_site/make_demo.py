@@ -1,7 +1,8 @@
 """Writes the invented demo site's input files (run once; the outputs are committed beside it).
 
 Ostrey, an invented riverside town. A 2.0 m OD water-main tunnel is pipejacked 480 m from the Kiln Yard shaft,
-curving left under Tanner's Walk, dipping under the Wenlow Brook, to the Osier Meadow shaft. A 1.5 m OD cable
+curving left under Tanner's Walk, dipping under the Wenlow Brook, to the Osier Meadow shaft (its design alignment
+in LandXML, water_main.xml; the valley's ground as a DEM, valley_dem.tif). A 1.5 m OD cable
 tunnel is being driven north from Osier Meadow toward the Rope Street shaft (face at chainage 95 m).
 Every name, place and number here is made up for the demo.
 """
@@ -26,10 +27,11 @@ def ground_level(x, y):
 
 
 def drive_one():
-    """Plan: straight 120 m, then a 360 m long left-hand curve of radius 420 m. Section: invert levels."""
+    """The water main set out every 5 m (for placing the other inputs beside it): plan straight 120 m, then a 360 m
+    long left-hand curve of radius 420 m; invert levels."""
     s = np.arange(0.0, 480.01, 5.0)
-    heading0 = np.radians(12.0)
-    radius = 420.0
+    heading0 = np.radians(MAIN_HEADING_DEG)
+    radius = MAIN_RADIUS_M
     x = np.empty_like(s)
     y = np.empty_like(s)
     straight = s <= 120.0
@@ -40,10 +42,77 @@ def drive_one():
     cx, cy = xs - radius * np.sin(heading0), ys + radius * np.cos(heading0)  # centre to the left
     x[~straight] = cx + radius * np.sin(heading0 + a)
     y[~straight] = cy - radius * np.cos(heading0 + a)
-    # Axis: 5.7 m deep at Kiln Yard, a sag under the brook, 5.2 m deep at Osier Meadow.
-    axis = np.interp(s, [0.0, 180.0, 250.0, 330.0, 400.0, 480.0], [25.5, 24.5, 23.4, 23.4, 24.2, 25.0])
-    invert = axis - 1.6 / 2.0  # inner diameter 1.6 m
+    # Invert: the PVIs of the design profile (the vertical curves ease it by a few centimetres; water_main.xml).
+    invert = np.interp(s, [p[0] for p in MAIN_PVIS], [p[1] for p in MAIN_PVIS])
     return x, y, invert
+
+
+# The water main's design alignment, as its designers would issue it: plan and profile as geometry, in LandXML 1.2.
+MAIN_HEADING_DEG = 12.0  # the straight out of Kiln Yard, anticlockwise from east
+MAIN_STRAIGHT_M = 120.0
+MAIN_RADIUS_M = 420.0
+MAIN_CURVE_M = 360.0
+# Invert profile: (station, invert level) of the PVIs, and the parabolic vertical curve at each (0: none). The drive
+# falls from Kiln Yard, sags under the Wenlow Brook and rises to Osier Meadow; 40 m vertical curves ease the grade
+# changes, as a jacked pipe string needs.
+MAIN_INNER_DIAMETER_M = 1.6
+MAIN_PVIS = ((0.0, 24.7, 0.0), (180.0, 23.7, 40.0), (250.0, 22.6, 40.0), (330.0, 22.6, 40.0), (480.0, 24.2, 0.0))
+
+
+def write_landxml():
+    """water_main.xml: a line and a left-hand circular curve in plan, PVIs with parabolic vertical curves for the
+    invert. LandXML writes points as "northing easting"."""
+    h = np.radians(MAIN_HEADING_DEG)
+    start = np.array([0.0, 0.0])
+    pc = start + MAIN_STRAIGHT_M * np.array([np.cos(h), np.sin(h)])
+    centre = pc + MAIN_RADIUS_M * np.array([-np.sin(h), np.cos(h)])
+    a = MAIN_CURVE_M / MAIN_RADIUS_M
+    end = centre + MAIN_RADIUS_M * np.array([np.sin(h + a), -np.cos(h + a)])
+
+    def ne(p):
+        return f"{Y0 + p[1]:.4f} {X0 + p[0]:.4f}"
+
+    pvis = "".join(f'<ParaCurve length="{length:g}">{st:g} {z:.3f}</ParaCurve>' if length else
+                   f"<PVI>{st:g} {z:.3f}</PVI>" for st, z, length in MAIN_PVIS)
+    length = MAIN_STRAIGHT_M + MAIN_CURVE_M
+    text = f"""<?xml version="1.0" encoding="UTF-8"?>
+<!-- Ostrey (an invented town): the water main's design alignment. Invented for the settle demo. -->
+<LandXML xmlns="http://www.landxml.org/schema/LandXML-1.2" version="1.2">
+ <Units><Metric linearUnit="meter" areaUnit="squareMeter" volumeUnit="cubicMeter" angularUnit="radians"/></Units>
+ <Alignments name="Ostrey drives">
+  <Alignment name="Kiln Yard to Osier Meadow" length="{length:g}" staStart="0">
+   <CoordGeom>
+    <Line staStart="0" length="{MAIN_STRAIGHT_M:g}"><Start>{ne(start)}</Start><End>{ne(pc)}</End></Line>
+    <Curve staStart="{MAIN_STRAIGHT_M:g}" rot="ccw" radius="{MAIN_RADIUS_M:g}" length="{MAIN_CURVE_M:g}">
+     <Start>{ne(pc)}</Start><Center>{ne(centre)}</Center><End>{ne(end)}</End></Curve>
+   </CoordGeom>
+   <Profile><ProfAlign name="invert design">{pvis}</ProfAlign></Profile>
+  </Alignment>
+ </Alignments>
+</LandXML>
+"""
+    (HERE / "water_main.xml").write_text(text)
+
+
+# The valley's DEM: 2 m cells over the survey's area, levels of the invented ground at the cell centres.
+DEM_CELL_M = 2.0
+DEM_WEST, DEM_EAST, DEM_SOUTH, DEM_NORTH = -40.0, 540.0, -80.0, 460.0  # local metres from Kiln Yard
+
+
+def write_dem():
+    """valley_dem.tif: a single-band GeoTIFF (Float32, EPSG:25832, deflate) of `ground_level`."""
+    import rasterio
+    from rasterio.transform import from_origin
+
+    cols = int((DEM_EAST - DEM_WEST) / DEM_CELL_M)
+    rows = int((DEM_NORTH - DEM_SOUTH) / DEM_CELL_M)
+    cx = DEM_WEST + (np.arange(cols) + 0.5) * DEM_CELL_M
+    cy = DEM_NORTH - (np.arange(rows) + 0.5) * DEM_CELL_M
+    levels = ground_level(*np.meshgrid(cx, cy)).astype("float32")
+    with rasterio.open(HERE / "valley_dem.tif", "w", driver="GTiff", width=cols, height=rows, count=1,
+                       dtype="float32", crs="EPSG:25832", nodata=-9999.0, compress="deflate",
+                       transform=from_origin(X0 + DEM_WEST, Y0 + DEM_NORTH, DEM_CELL_M, DEM_CELL_M)) as dem:
+        dem.write(levels, 1)
 
 
 def main():
@@ -62,11 +131,9 @@ def main():
         for a, b in zip(px, py):
             f.write(f"{X0 + a:.2f},{Y0 + b:.2f},{ground_level(a, b):.3f}\n")
 
+    write_dem()
     x, y, invert = drive_one()
-    with open(HERE / "water_main_alignment.csv", "w") as f:
-        f.write("x,y,invert_z\n")
-        for a, b, c in zip(x, y, invert):
-            f.write(f"{X0 + a:.3f},{Y0 + b:.3f},{c:.3f}\n")
+    write_landxml()
 
     # Cable tunnel: from Osier Meadow shaft heading north-north-west, depth of axis below ground as Z.
     sx, sy = x[-1] + 6.0, y[-1] + 4.0
@@ -220,9 +287,9 @@ def write_readings(cable_xy):
     import sys
 
     sys.path.insert(0, str(HERE.parent))
-    from settle.fitting import drive_with_values, predicted_settlement_mm
-    from settle.project import load_project
-    from settle.readings import Readings
+    from settle.monitoring.fitting import drive_with_values, predicted_settlement_mm
+    from settle.inputs.project_file import load_project
+    from settle.inputs.readings import Readings
 
     project = load_project(HERE / "ostrey.toml")
     index = [d.name for d in project.drives].index("Osier Meadow to Rope Street cable tunnel")

@@ -91,7 +91,7 @@ def _add_run(commands) -> None:
     where.add_argument("--workers", type=_worker_count, metavar="N",
                        help="run the heavy steps on a local Dask cluster of N worker processes (the work is split by "
                             "drive and by tiles along the route; the numbers are the same as in one process)")
-    where.add_argument("--scheduler", metavar="tcp://HOST:PORT",
+    where.add_argument("--scheduler", metavar="tcp://HOST:PORT", type=_scheduler_address,
                        help="send the heavy steps to a running Dask cluster: a scheduler started with `dask "
                             "scheduler` and workers started with `dask worker tcp://HOST:PORT`, each with this "
                             "settle version installed")
@@ -106,6 +106,15 @@ def _worker_count(text: str) -> int:
     if not 1 <= value <= 256:
         raise argparse.ArgumentTypeError(f"must be from 1 to 256; got {value}")
     return value
+
+
+def _scheduler_address(text: str) -> str:
+    """--scheduler ADDRESS: a Dask scheduler's address, tcp://HOST:PORT (or HOST:PORT)."""
+    address = text.strip()
+    host, _, port = address.rpartition(":")
+    if not host or not port.isdigit() or not 0 < int(port) < 65536 or any(c.isspace() for c in address):
+        raise argparse.ArgumentTypeError(f"must be a Dask scheduler's address, tcp://HOST:PORT; got {text!r}")
+    return address
 
 
 def _add_report(commands) -> None:

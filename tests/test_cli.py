@@ -187,11 +187,13 @@ def test_bad_input_exits_2_with_one_line_and_no_traceback(tmp_path, old, new, me
 
 
 def test_crown_above_ground_is_refused(tmp_path):
-    # Lift the water main's invert by 6 m: its crown comes out of the ground.
-    toml = _broken_copy(tmp_path, 'alignment = "water_main_alignment.csv"', 'alignment = "lifted.csv"')
-    rows = (DEMO / "water_main_alignment.csv").read_text().splitlines()
-    lifted = [rows[0]] + [",".join([*r.split(",")[:2], f"{float(r.split(',')[2]) + 6:.3f}"]) for r in rows[1:]]
-    (tmp_path / "lifted.csv").write_text("\n".join(lifted) + "\n")
+    # Lift the water main's invert profile (the levels of its LandXML PVIs) by 6 m: its crown comes out of the ground.
+    toml = _broken_copy(tmp_path, 'alignment = "water_main.xml"', 'alignment = "lifted.xml"')
+    text = (DEMO / "water_main.xml").read_text()
+    lifted, count = re.subn(r"(<(?:PVI|ParaCurve)[^>]*>)([^<\s]+) ([^<\s]+)<",
+                            lambda m: f"{m[1]}{m[2]} {float(m[3]) + 6.0:.3f}<", text)
+    assert count == 5
+    (tmp_path / "lifted.xml").write_text(lifted)
     done = settle("run", toml, "--out", tmp_path)
     assert done.returncode == 2
     assert "crown is above the ground surface" in done.stderr and "Traceback" not in done.stderr

@@ -175,6 +175,8 @@ def test_the_same_seed_gives_the_same_numbers_in_one_process_with_workers_and_on
     (["--workers", "two"], "whole number"),
     (["--workers", "1e308"], "whole number"),
     (["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"], "not allowed with"),
+    (["--scheduler", "nonsense"], "must be a Dask scheduler's address"),
+    (["--scheduler", ""], "must be a Dask scheduler's address"),
 ])
 def test_bad_worker_options_end_in_one_line_and_exit_2(tmp_path, capsys, args, words):
     with pytest.raises(SystemExit) as stop:
