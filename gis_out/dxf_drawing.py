@@ -29,6 +29,7 @@ the building id and damage category (-1 when not assessed), or the pipe id and s
 """
 from __future__ import annotations
 
+import contextlib
 import functools
 import io
 import math
@@ -523,7 +524,20 @@ def write_dxf(path, layers: dict, drives: list, levels_mm=None, tick_spacing_m: 
     if not os.fspath(path).lower().endswith(".dxf"):
         raise OutputError(f"{os.path.abspath(os.fspath(path))}: output file name must end in .dxf; got "
                           f"{os.path.basename(os.fspath(path))!r}")
-    doc = dxf_document(layers, drives, levels_mm, tick_spacing_m, plot_scale)
-    stream = io.StringIO()
-    doc.write(stream)
+    with _fixed_metadata():
+        doc = dxf_document(layers, drives, levels_mm, tick_spacing_m, plot_scale)
+        stream = io.StringIO()
+        doc.write(stream)
     return write_text_atomic(path, stream.getvalue(), encoding=doc.output_encoding)
+
+
+@contextlib.contextmanager
+def _fixed_metadata():
+    """The same inputs give the same bytes: ezdxf's fixed creation and update times, GUIDs and marker for this
+    drawing (its own switch for reproducible files), set back as it was afterwards."""
+    before = ezdxf.options.write_fixed_meta_data_for_testing
+    ezdxf.options.write_fixed_meta_data_for_testing = True
+    try:
+        yield
+    finally:
+        ezdxf.options.write_fixed_meta_data_for_testing = before

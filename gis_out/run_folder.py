@@ -59,24 +59,26 @@ def slug(name: str) -> str:
 
 
 def write_run(result: Result, out: Path, stem: str, monitoring: Monitoring | None = None,
-              report: bool = False, record: RunRecord | None = None) -> dict:
+              report: bool = False, record: RunRecord | None = None, design=None) -> dict:
     """Write a run's outputs into `out` (created if missing) as one set and return its summary (summary.json's
     content).
 
     The GeoPackage `<stem>.gpkg` with its styles (and the .qml/.sld files beside it), the optional settlement
     GeoTIFF, buildings.csv, utilities.csv, the face pressure table and sections, the monitored sections,
-    summary.json, the PDF report when asked, and run.json.
+    summary.json, the PDF report when asked, and run.json. `design`, when given, is the project whose prediction the
+    readings are compared with (the site service's fitted run keeps the design's); default the run's own.
     """
     record = record or RunRecord()
     with _writing(out) as run_set:
-        summary = _write_run_files(result, run_set.stage, stem, monitoring, report, record)
+        summary = _write_run_files(result, run_set.stage, stem, monitoring, report, record, design)
         run_set.commit(_manifest("run", record, out))
     return summary
 
 
-def _write_run_files(result: Result, stage: Path, stem: str, monitoring, report: bool, record: RunRecord) -> dict:
+def _write_run_files(result: Result, stage: Path, stem: str, monitoring, report: bool, record: RunRecord,
+                     design=None) -> dict:
     """Every file of a run, written into the staging folder; the summary."""
-    project = result.project
+    project = design or result.project
     layers = frames(result)
     if monitoring:
         layers["readings"] = _readings_layer(project, monitoring)
@@ -91,7 +93,7 @@ def _write_run_files(result: Result, stage: Path, stem: str, monitoring, report:
         summary["readings"] = _readings_summary(project, layers["readings"], monitoring)
     write_text_atomic(stage / "summary.json", json.dumps(summary, indent=2) + "\n")
     if report:
-        _report_pdf(project, stage, stage, stem, record.run_date)
+        _report_pdf(result.project, stage, stage, stem, record.run_date)
     return summary
 
 

@@ -54,6 +54,8 @@ def _parser() -> argparse.ArgumentParser:
     _add_run(commands)
     _add_report(commands)
     _add_fit(commands)
+    _add_serve(commands)
+    _add_token(commands)
     return parser
 
 
@@ -150,6 +152,100 @@ def _add_fit(commands) -> None:
     fit.add_argument("--min-face-past-m", type=float, default=None, metavar="M",
                      help="fit only readings taken with the face at least this far past the point (default: all)")
     fit.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+
+def _add_serve(commands) -> None:
+    serve = commands.add_parser(
+        "serve", help="serve a project to the site team: readings posted daily, refits, triggers and the map",
+        description=_paragraphs(
+            "Serve PROJECT on a web page and a JSON API: the site team posts readings (POST /api/readings with a "
+            "write token from `settle token add`); after each post the back-analysis, the forecast ahead of the "
+            "face and a run with the fitted values are redone in the background; the page shows the map, the "
+            "points over their triggers, each point's readings against the predicted and fitted values, and the "
+            "downloads. DIR holds the database (site.sqlite) and the latest fitted run (DIR/latest). Binds to "
+            "127.0.0.1 unless --host says otherwise.", CAUTION),
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    serve.add_argument("project", metavar="PROJECT.toml", help="the project file")
+    serve.add_argument("--data", metavar="DIR", required=True, help="the service's data folder (created if missing)")
+    serve.add_argument("--host", default="127.0.0.1", help="address to listen on (default 127.0.0.1: this machine "
+                                                           "only)")
+    serve.add_argument("--port", type=_port, default=8650, help="port to listen on (default 8650)")
+    serve.add_argument("--max-upload-mb", type=_upload_limit, default=50.0, metavar="MB",
+                       help="largest readings file accepted (default 50)")
+
+
+def _port(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a port number from 1 to 65535; got {text!r}") from None
+    if not 1 <= value <= 65535:
+        raise argparse.ArgumentTypeError(f"must be a port number from 1 to 65535; got {value}")
+    return value
+
+
+def _upload_limit(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number of megabytes; got {text!r}") from None
+    if not 0 < value <= 10_000:
+        raise argparse.ArgumentTypeError(f"must be more than 0 and at most 10000 MB; got {text}")
+    return value
+
+
+def _add_token(commands) -> None:
+    token = commands.add_parser("token", help="add, list or revoke the write tokens of a site service",
+                                description="Write tokens of the site service in DIR: each post of readings needs "
+                                            "one. Only a token's hash is stored; `add` prints the token once.")
+    actions = token.add_subparsers(dest="action", metavar="ACTION", required=True)
+    add = actions.add_parser("add", help="make a new token for NAME and print it once (its last line of output)")
+    add.add_argument("name", metavar="NAME", help="who the token is for: letters, digits, '-', '_', '.'")
+    listing = actions.add_parser("list", help="list the tokens: name, created, revoked")
+    revoke = actions.add_parser("revoke", help="revoke NAME's token: refused at once, also by a running server")
+    revoke.add_argument("name", metavar="NAME")
+    for action in (add, listing, revoke):
+        action.add_argument("--data", metavar="DIR", required=True, help="the service's data folder")
+
+
+def _serve(args) -> int:
+    """`settle serve`: the site service, until interrupted."""
+    import uvicorn
+
+    from .inputs.project_file import load_project
+    from .service.app import create_app
+
+    project = load_project(args.project)
+    if project.monitoring is None:
+        raise InputError(f"{args.project}: the site service needs trigger levels: add [monitoring] amber_mm and "
+                         "red_mm")
+    app = create_app(project, args.data, max_upload_mb=args.max_upload_mb)
+    print(f"serving {project.name} on http://{args.host}:{args.port}/ (data in {args.data}); Ctrl-C stops",
+          file=sys.stderr)
+    uvicorn.run(app, host=args.host, port=args.port, log_level="warning")
+    return 0
+
+
+def _token(args) -> int:
+    """`settle token add|list|revoke`."""
+    from .service.store import Store
+
+    store = Store(args.data, create=args.action == "add")
+    if args.action == "add":
+        token = store.add_token(args.name)
+        print(f"token for {args.name} (shown once; keep it secret, give it to whoever posts readings):")
+        print(token)
+    elif args.action == "list":
+        rows = store.tokens()
+        if not rows:
+            print("no tokens")
+        for row in rows:
+            state = f"revoked {row.revoked_utc}" if row.revoked_utc else "valid"
+            print(f"{row.name}\tcreated {row.created_utc}\t{state}")
+    else:
+        store.revoke_token(args.name)
+        print(f"revoked {args.name}")
+    return 0
 
 
 def _run(args) -> int:
@@ -251,6 +347,10 @@ def main(argv=None) -> int:
             return _fit(args)
         if args.command == "report":
             return _report(args)
+        if args.command == "serve":
+            return _serve(args)
+        if args.command == "token":
+            return _token(args)
     except InputError as exc:
         print(f"settle: error: {exc}", file=sys.stderr)
         return InputError.exit_status

@@ -413,9 +413,9 @@ def test_a_run_with_dxf_true_writes_the_drawing_into_its_folder(tmp_path):
 
     from tests import builders
 
-    project = builders.demo_copy(tmp_path)
+    project = builders.demo_copy(tmp_path)  # the demo asks for the drawing: [output] dxf = true
     text = project.read_text()
-    project.write_text(text.replace("[output]\n", "[output]\ndxf = true\n", 1))
+    assert "\ndxf = true" in text
     out = tmp_path / "out"
     done = subprocess.run([sys.executable, "-m", "settle", "run", project, "--out", out, "--quiet"],
                           capture_output=True, text=True)
@@ -431,7 +431,7 @@ def test_a_run_with_dxf_true_writes_the_drawing_into_its_folder(tmp_path):
         layer = f"settle_buildings_cat{int(category)}" if category >= 0 else "settle_buildings_not_assessed"
         fills = [e for e in msp.query("HATCH") if e.dxf.layer == layer]
         assert len(fills) == count, layer
-    project.write_text(text.replace("[output]\n", '[output]\ndxf = "yes"\n', 1))
+    project.write_text(text.replace("\ndxf = true", '\ndxf = "yes"', 1))
     done = subprocess.run([sys.executable, "-m", "settle", "run", project, "--out", out, "--quiet"],
                           capture_output=True, text=True)
     assert done.returncode == 2 and "dxf must be true or false" in done.stderr and done.stderr.count("\n") == 1

@@ -489,15 +489,16 @@ def test_the_plan_states_the_islands_left_out(demo_figures):
 
 
 def test_the_demo_10_mm_level_reads_as_few_shapes_not_specks(demo):
-    # The settlement_bands layer (exact) holds the 10 mm level as 15 pieces along the water main, most of them
-    # specks under a square metre where the settlement ripples about 10 mm; the figure draws at most two shapes.
+    # The settlement_bands layer (exact) holds the 10 mm level as 10 pieces along the water main (15 on the survey
+    # surface before the demo took its DEM), most of them specks under a square metre where the settlement ripples
+    # about 10 mm; the figure draws at most two shapes.
     gpkg, _, _ = demo
     bands = gpd.read_file(gpkg, layer="settlement_bands")
     exact = len(shapely.get_parts(shapely.union_all(bands.geometry[bands["lower_mm"] >= 10.0].to_numpy())))
     levels = figure_contours.figure_levels(bands["band"], bands["lower_mm"], bands.geometry, 1.0)
     k = levels.lower_mm.index(10.0)
     drawn = len(shapely.get_parts(shapely.union_all([levels.bands[j] for j in range(k, len(levels.bands))])))
-    assert exact > 10 and drawn <= 2
+    assert exact >= 8 and drawn <= 2
     assert levels.dropped[10.0] >= 1
 
 

@@ -90,7 +90,7 @@ def test_the_run_is_refused_before_the_grid_is_built(machine, monkeypatch):
     def no_grid(*args, **kwargs):
         raise AssertionError("the grid was started")
 
-    monkeypatch.setattr(orchestrator, "settlement_grid", no_grid)
+    monkeypatch.setattr(orchestrator, "grid_batches", no_grid)  # the first step of the grid
     with pytest.raises(InputError, match="grid_spacing_m = 0.001"):
         run(straight(spacing=0.001))
 

@@ -56,7 +56,8 @@ from ..errors import InputError, where
 from .ground import GroundModel
 from .model import Project
 from .route import build_drive
-from .tables import COORDINATE_LIMIT_M, DEPTH_LIMIT_M, bounds_text, check_input_file, read_csv, shown
+from .tables import (COORDINATE_LIMIT_M, DEPTH_LIMIT_M, bounds_text, check_input_file, read_csv, read_csv_text,
+                     shown)
 
 #: A point keeps its place: rows of one point (and the [points] table) must agree within this in plan. Our choice:
 #: larger than the horizontal movement of a monitored point, smaller than the spacing of points in an array. [m]
@@ -169,7 +170,15 @@ def read_readings(path, project: Project) -> Readings:
     """
     path = Path(path)
     check_input_file(path, project.output.input_size_limit_mb, "readings file")
-    table = read_csv(path)
+    return _readings_of_table(read_csv(path), project, path)
+
+
+def read_readings_text(text: str, project: Project, source: str) -> Readings:
+    """As `read_readings`, from the text of a readings file (an upload); `source` names it in messages."""
+    return _readings_of_table(read_csv_text(text, source), project, source)
+
+
+def _readings_of_table(table, project: Project, path) -> Readings:
     table.require(*REQUIRED)
     names = tuple(d.name for d in project.drives)
     _check_columns(path, table, names, project.points)

@@ -28,6 +28,7 @@ Alignment checks (both sources)
 from __future__ import annotations
 
 import csv
+import io
 import os
 import stat
 import warnings as python_warnings
@@ -255,19 +256,30 @@ def read_csv(path) -> CsvTable:
     """Read a CSV file with one header line into a `CsvTable` (text cells; nothing converted yet)."""
     path = Path(path)
     refuse_special_file(path)
-    rows, lines = [], []
     try:
         with open(path, newline="", encoding="utf-8-sig") as stream:
-            reader = csv.reader(stream)
-            for row in reader:
-                rows.append([cell.strip() for cell in row])
-                lines.append(reader.line_num)
+            return _csv_table(stream, path)
     except UnicodeDecodeError:
         raise InputError(f"{path}: not UTF-8 text; save the table as CSV UTF-8") from None
-    except csv.Error as exc:
-        raise InputError(f"{where(path, row=len(lines) + 1)}: not valid CSV: {exc}") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read: {exc.strerror}") from None
+
+
+def read_csv_text(text: str, source) -> CsvTable:
+    """A CSV table from text (say the body of an upload), with the checks of `read_csv`; `source` names it in
+    messages."""
+    return _csv_table(io.StringIO(text.removeprefix("\ufeff"), newline=""), source)
+
+
+def _csv_table(stream, path) -> CsvTable:
+    rows, lines = [], []
+    try:
+        reader = csv.reader(stream)
+        for row in reader:
+            rows.append([cell.strip() for cell in row])
+            lines.append(reader.line_num)
+    except csv.Error as exc:
+        raise InputError(f"{where(path, row=len(lines) + 1)}: not valid CSV: {exc}") from None
     if not rows or not any(rows[0]):
         raise InputError(f"{path}: no header line; the first line must name the columns")
     header = tuple(rows[0])
