@@ -23,3 +23,13 @@ def test_a_readme_python_block_runs_as_written(k, tmp_path):
     assert done.returncode == 0, done.stderr[-3000:]
     for path in re.findall(r'write_geopackage\("([^"]+)"', BLOCKS[k]):
         assert (tmp_path / path).is_file(), path
+
+
+def test_ci_runs_exactly_the_readmes_test_command():
+    """.ci/run runs the README's test command, word for word (browser install included)."""
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    command = re.search(r"Set up and pass the tests.*?```\n(.*?)\n```", readme, re.S).group(1).strip()
+    ci = [line for line in (ROOT / ".ci" / "run").read_text().splitlines()
+          if line and not line.startswith(("#", "set ", "cd "))]
+    assert ci == [command]
+    assert command.startswith("bash tests/install_browser.sh && ")
