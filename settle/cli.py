@@ -99,15 +99,22 @@ def _add_run(commands) -> None:
                             "settle version installed")
 
 
-def _worker_count(text: str) -> int:
-    """--workers N: a whole number from 1 to 256."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a whole number of worker processes; got {text!r}") from None
-    if not 1 <= value <= 256:
-        raise argparse.ArgumentTypeError(f"must be from 1 to 256; got {value}")
-    return value
+def _whole_number(low: int, high: int, what: str):
+    """An argparse type: a whole number from `low` to `high`, `what` naming it in the message."""
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"must be {what}; got {text!r}") from None
+        if not low <= value <= high:
+            raise argparse.ArgumentTypeError(f"must be from {low} to {high}; got {value}")
+        return value
+
+    return parse
+
+
+_worker_count = _whole_number(1, 256, "a whole number of worker processes")
+_port = _whole_number(1, 65535, "a whole port number")
 
 
 def _scheduler_address(text: str) -> str:
@@ -172,16 +179,6 @@ def _add_serve(commands) -> None:
     serve.add_argument("--port", type=_port, default=8650, help="port to listen on (default 8650)")
     serve.add_argument("--max-upload-mb", type=_upload_limit, default=50.0, metavar="MB",
                        help="largest readings file accepted (default 50)")
-
-
-def _port(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a port number from 1 to 65535; got {text!r}") from None
-    if not 1 <= value <= 65535:
-        raise argparse.ArgumentTypeError(f"must be a port number from 1 to 65535; got {value}")
-    return value
 
 
 def _upload_limit(text: str) -> float:

@@ -327,19 +327,24 @@ def _check_units(root, path: Path) -> None:
 def _choose_alignment(root, path: Path, name: str | None, name_key: str):
     """The <Alignment> named `name`, or the file's only one."""
     found = [a for group in root.findall("Alignments") for a in group.findall("Alignment")]
-    names = [a.get("name", "") for a in found]
     if not found:
         raise InputError(f"{printable(path)}: no <Alignments><Alignment> in the file")
+    return _choose_named(found, name, "Alignment", "alignments", name_key, printable(path), "(its name attribute)")
+
+
+def _choose_named(found: list, name: str | None, tag: str, plural: str, key: str, where: str, hint: str = ""):
+    """Of the elements `found` (<tag>), the one named `name`, or the only one when `name` is None; else an
+    InputError listing the names."""
+    names = [e.get("name", "") for e in found]
     if name is None:
         if len(found) > 1:
-            raise InputError(f"{printable(path)}: holds {len(found)} alignments; choose one with {name_key} (its "
-                             f"name attribute); names found: {listing(names)}")
+            raise InputError(f"{where}: holds {len(found)} {plural}; choose one with {key}{' ' + hint if hint else ''}"
+                             f"; names found: {listing(names)}")
         return found[0]
-    hits = [a for a in found if a.get("name") == name]
+    hits = [e for e in found if e.get("name") == name]
     if len(hits) != 1:
-        problem = "no <Alignment> is" if not hits else f"{len(hits)} <Alignment> elements are"
-        raise InputError(f"{printable(path)}: {problem} named {shown(name)} ({name_key}); names found: "
-                         f"{listing(names)}")
+        problem = f"no <{tag}> is" if not hits else f"{len(hits)} <{tag}> elements are"
+        raise InputError(f"{where}: {problem} named {shown(name)} ({key}); names found: {listing(names)}")
     return hits[0]
 
 
@@ -530,21 +535,9 @@ def _plan_elements(alignment, source: str, station0: float, points: dict) -> lis
 def _design_profile(alignment, source: str, profile: str | None, profile_key: str):
     """The one <ProfAlign> of the alignment (or the one named `profile`) and its label for messages."""
     found = [p for group in alignment.findall("Profile") for p in group.findall("ProfAlign")]
-    names = [p.get("name", "") for p in found]
     if not found:
         raise InputError(f"{source}: no design profile (<Profile><ProfAlign>); a drive needs the levels of its axis")
-    if profile is None:
-        if len(found) > 1:
-            raise InputError(f"{source}: holds {len(found)} design profiles (<ProfAlign>); choose one with "
-                             f"{profile_key}; names found: {listing(names)}")
-        chosen = found[0]
-    else:
-        hits = [p for p in found if p.get("name") == profile]
-        if len(hits) != 1:
-            problem = "no <ProfAlign> is" if not hits else f"{len(hits)} <ProfAlign> elements are"
-            raise InputError(f"{source}: {problem} named {shown(profile)} ({profile_key}); names found: "
-                             f"{listing(names)}")
-        chosen = hits[0]
+    chosen = _choose_named(found, profile, "ProfAlign", "design profiles (<ProfAlign>)", profile_key, source)
     return chosen, f"{source} <ProfAlign> {shown(chosen.get('name', ''))}"
 
 
