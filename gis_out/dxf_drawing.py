@@ -29,6 +29,7 @@ the building id and damage category (-1 when not assessed), or the pipe id and s
 """
 from __future__ import annotations
 
+import collections
 import contextlib
 import functools
 import io
@@ -526,9 +527,18 @@ def write_dxf(path, layers: dict, drives: list, levels_mm=None, tick_spacing_m: 
                           f"{os.path.basename(os.fspath(path))!r}")
     with _fixed_metadata():
         doc = dxf_document(layers, drives, levels_mm, tick_spacing_m, plot_scale)
+        classes = doc.classes
+        classes.export_dxf = functools.partial(_export_classes_in_order, classes)
         stream = io.StringIO()
         doc.write(stream)
     return write_text_atomic(path, stream.getvalue(), encoding=doc.output_encoding)
+
+
+def _export_classes_in_order(section, tagwriter) -> None:
+    """The CLASSES section sorted by class name: ezdxf adds the required classes in the order of a set, which changes
+    from one process to the next (string hashing), and the same inputs must give the same bytes."""
+    section.classes = collections.OrderedDict(sorted(section.classes.items()))
+    type(section).export_dxf(section, tagwriter)
 
 
 @contextlib.contextmanager

@@ -149,6 +149,7 @@ def test_status_gives_counts_triggers_and_the_fit_that_the_back_analysis_gives(s
     cable = status["drives"][1]
     assert cable["volume_loss_pct"] == pytest.approx(fit.volume_loss_pct, rel=1e-9)
     assert cable["trough_width_k_se"] == pytest.approx(fit.trough_width_k_se, rel=1e-9)
+    assert cable["volume_loss_pct_ci95"] == pytest.approx(fit.volume_loss_pct_ci95, rel=1e-9)  # as fit.json
     assert cable["face_chainage_m"] == 95.0 and 9.0 < cable["face_lon"] < 9.3 and 51.3 < cable["face_lat"] < 51.6
     assert status["downloads"] == {"geopackage": "/api/files/geopackage", "report": "/api/files/report"}
     assert "do not replace" in status["caution"]

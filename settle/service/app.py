@@ -136,6 +136,8 @@ def create_app(project: Project, data_folder, max_upload_mb: float = DEFAULT_MAX
                            "volume_loss_pct_se": fit.get("volume_loss_pct_se"),
                            "trough_width_k": fit.get("trough_width_k"),
                            "trough_width_k_se": fit.get("trough_width_k_se"),
+                           "volume_loss_pct_ci95": fit.get("volume_loss_pct_ci95"),
+                           "trough_width_k_ci95": fit.get("trough_width_k_ci95"),
                            "readings_used": fit.get("readings_used"),
                            "fitted_at": done["finished_utc"] if fit else None,
                            "volume_loss_design_pct": d.volume_loss_pct})

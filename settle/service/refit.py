@@ -53,6 +53,8 @@ def fits_of(analysis) -> list[dict]:
         out.append({"drive": name, "volume_loss_pct": _finite(fit.volume_loss_pct),
                     "volume_loss_pct_se": _finite(fit.volume_loss_pct_se),
                     "trough_width_k": _finite(fit.trough_width_k), "trough_width_k_se": _finite(fit.trough_width_k_se),
+                    "volume_loss_pct_ci95": [_finite(v) for v in fit.volume_loss_pct_ci95],
+                    "trough_width_k_ci95": [_finite(v) for v in fit.trough_width_k_ci95],
                     "readings_used": int(fit.readings_used), "rms_mm": _finite(fit.rms_mm)})
     return out
 
