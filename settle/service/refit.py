@@ -21,8 +21,6 @@ from ..procedure.monitoring_steps import Monitoring
 from ..procedure.orchestrator import run as run_project
 from .store import Store, utc_now
 
-STATES = ("idle", "queued", "running", "failed")
-
 
 def latest_faces(project: Project, readings) -> dict[int, float]:
     """Per drive with readings, the face at its latest reading (the construction stage the readings show). [m]"""
@@ -70,7 +68,8 @@ def fitted_from(project: Project, fits: list[dict] | None) -> Project:
 
 
 class Refitter:
-    """The background refit of one served project. `request()` asks for a refit; `status()` tells where it is."""
+    """The background refit of one served project. `request()` asks for a refit; `status()` tells where it is:
+    idle, queued, running or failed (with the message)."""
 
     def __init__(self, project: Project, store: Store, write_run):
         """`write_run(result, monitoring, design_project)` writes the fitted run folder (the service's gis_out
@@ -108,16 +107,6 @@ class Refitter:
     def status(self) -> dict:
         return {"state": self.state, "message": self.message, "started_at": self.started_utc,
                 "finished_at": self.finished_utc}
-
-    def wait_idle(self, timeout_s: float = 120.0) -> bool:
-        """For tests and the command line: wait until no refit is queued or running."""
-        deadline = threading.Event()
-        for _ in range(int(timeout_s * 10)):
-            with self._wake:
-                if not self._pending and self.state in ("idle", "failed"):
-                    return True
-            deadline.wait(0.1)
-        return False
 
     def _loop(self) -> None:
         while True:
