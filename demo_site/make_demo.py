@@ -102,16 +102,17 @@ DEM_WEST, DEM_EAST, DEM_SOUTH, DEM_NORTH = -40.0, 540.0, -80.0, 460.0  # local m
 def write_dem():
     """valley_dem.tif: a single-band GeoTIFF (Float32, EPSG:25832, deflate) of `ground_level`."""
     import rasterio
-    from rasterio.transform import from_origin
+    from rasterio.transform import Affine
 
     cols = int((DEM_EAST - DEM_WEST) / DEM_CELL_M)
     rows = int((DEM_NORTH - DEM_SOUTH) / DEM_CELL_M)
     cx = DEM_WEST + (np.arange(cols) + 0.5) * DEM_CELL_M
     cy = DEM_NORTH - (np.arange(rows) + 0.5) * DEM_CELL_M
     levels = ground_level(*np.meshgrid(cx, cy)).astype("float32")
+    transform = Affine(DEM_CELL_M, 0.0, X0 + DEM_WEST, 0.0, -DEM_CELL_M, Y0 + DEM_NORTH)  # north-up, 2 m cells
     with rasterio.open(HERE / "valley_dem.tif", "w", driver="GTiff", width=cols, height=rows, count=1,
                        dtype="float32", crs="EPSG:25832", nodata=-9999.0, compress="deflate",
-                       transform=from_origin(X0 + DEM_WEST, Y0 + DEM_NORTH, DEM_CELL_M, DEM_CELL_M)) as dem:
+                       transform=transform) as dem:
         dem.write(levels, 1)
 
 

@@ -10,7 +10,7 @@ import pytest
 import rasterio
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from rasterio.transform import from_origin
+from rasterio.transform import Affine
 
 from settle.errors import InputError
 from settle.inputs.dem_surface import read_dem
@@ -31,7 +31,7 @@ def plane(x, y):
 
 def write_dem(path, values=None, crs=CRS, transform=None, nodata=-9999.0, count=1, dtype="float32"):
     """A GeoTIFF of `values` (rows from the north), or of `plane` at the cell centres of a 100 x 80 grid."""
-    transform = transform or from_origin(X0, Y0, CELL, CELL)
+    transform = transform or Affine(CELL, 0.0, X0, 0.0, -CELL, Y0)
     if values is None:
         rows, cols = np.mgrid[0:80, 0:100]
         x, y = transform @ (cols + 0.5, rows + 0.5)
@@ -104,7 +104,7 @@ def test_a_dem_in_another_crs_is_sampled_at_the_places_transformed_into_it(tmp_p
     back = pyproj.Transformer.from_crs("EPSG:4326", CRS, always_xy=True)
     x, y = back.transform(lon, lat)
     path = write_dem(tmp_path / "wgs.tif", plane(x, y), crs="EPSG:4326",
-                     transform=from_origin(lon0, lat0, d, d), dtype="float64")
+                     transform=Affine(d, 0.0, lon0, 0.0, -d, lat0), dtype="float64")
     dem = read_dem(path, CRS, "test")
     assert "own CRS" in dem.crs_note
     px, py = X0 + np.array([60.0, 200.0, 350.0]), Y0 - np.array([30.0, 150.0, 250.0])
@@ -133,14 +133,17 @@ def test_nodata_under_a_route_is_an_error_naming_its_chainages(site):  # noqa: F
     values = plane(x, y)
     values[(x > 500_020) & (x < 500_035) & (np.abs(y - 180_000) < 8)] = -9999.0  # a hole across West
     write_dem(site / "dem.tif", values)
-    message = route_fails(edit(site, *RASTER_GROUND), r'"West": the DEM \(.*dem\.tif\) has no level under the route '
-                                                       r"at chainage 1[0-9]\.0-[34][0-9]\.0 m; the DEM ends or has nodata")
+    pattern = (r'"West": the DEM \(.*dem\.tif\) has no level under the route at chainage 1[0-9]\.0-[34][0-9]\.0 m; '
+               r"the DEM ends or has nodata")
+    message = route_fails(edit(site, *RASTER_GROUND), pattern)
     assert "\n" not in message
 
 
 def test_a_route_off_the_dem_is_an_error_naming_the_chainage(site):  # noqa: F811
-    write_dem(site / "dem.tif", transform=from_origin(X0 + 150.0, Y0, CELL, CELL))  # starts east of West's launch
-    route_fails(edit(site, *RASTER_GROUND), r'"West": the alignment leaves the DEM \(.*\) at chainage 0\.0 m \(vertex 1')
+    # the raster starts 150 m east of West's launch shaft
+    write_dem(site / "dem.tif", transform=Affine(CELL, 0.0, X0 + 150.0, 0.0, -CELL, Y0))
+    route_fails(edit(site, *RASTER_GROUND), r'"West": the alignment leaves the DEM \(.*\) at chainage 0\.0 m '
+                                            r"\(vertex 1")
 
 
 def route_fails(path, pattern) -> str:

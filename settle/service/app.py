@@ -166,13 +166,15 @@ def create_app(project: Project, data_folder, max_upload_mb: float = DEFAULT_MAX
         done = store.latest_run(finished_well=True)
         design = predicted_settlement_mm(project, readings)
         fits = ((done or {}).get("fits") or {}).get("fits")
-        fitted = predicted_settlement_mm(fitted_from(project, fits), readings) if fits else np.full(len(readings),
-                                                                                                      np.nan)
+        if fits:
+            fitted = predicted_settlement_mm(fitted_from(project, fits), readings)
+        else:
+            fitted = np.full(len(readings), np.nan)
         order = np.argsort(readings.date, kind="stable")
         series = [{"date": f"{np.datetime_as_string(readings.date[i], unit='s')}Z",
-                   "settlement_mm": _num(readings.settlement_mm[i]), "face_chainage_m": _num(readings.face_chainage_m[i]),
-                   "drive": names[int(readings.drive[i])], "predicted_mm": _num(design[i]), "fitted_mm": _num(fitted[i])}
-                  for i in order]
+                   "settlement_mm": _num(readings.settlement_mm[i]),
+                   "face_chainage_m": _num(readings.face_chainage_m[i]), "drive": names[int(readings.drive[i])],
+                   "predicted_mm": _num(design[i]), "fitted_mm": _num(fitted[i])} for i in order]
         return {"point_id": point_id, "drive": series[-1]["drive"], "trigger_status": layers.status_of(point_id),
                 "x_m": _num(readings.x_m[0]), "y_m": _num(readings.y_m[0]), "readings": series}
 
