@@ -400,7 +400,7 @@ def _surface_text(surf: dict) -> str:
         cols, rows = surf["cells"]
         dx, dy = surf["cell_size_m"]
         note = f", {surf['crs_note']}" if surf["crs_note"] else ""
-        return (f"Ground surface: the DEM {surf['file']} ({cols} x {rows} cells of {dx:g} x {dy:g}, levels "
+        return (f"Ground surface: the DEM {surf['file']} ({cols} x {rows} cells of {dx:g} x {dy:g} m, levels "
                 f"interpolated bilinearly between cell centres{note}; {surf['key']}).")
     return f"Ground surface: triangulated through {surf['points']} survey points in {surf['file']} ({surf['key']})."
 
