@@ -88,6 +88,32 @@ def test_a_late_survey_fills_in_an_earlier_day_of_a_points_series(project, tmp_p
     assert len(series) == len(point) and np.all(np.diff(series.date.astype(np.int64)) > 0)
 
 
+def test_a_later_batch_may_not_move_a_stored_point(project, tmp_path):
+    """A point keeps its place across batches as within a file (settle.inputs.readings.SAME_PLACE_M): a row that
+    places CT30-L3 a metre east of where it is stored is left out, naming the line; one at its place is taken."""
+    token = Store(tmp_path, create=True).add_token("surveyor")
+    with TestClient(create_app(project, tmp_path, refit=False)) as client:
+        assert client.post("/api/readings", content=READINGS.read_bytes(), headers=auth(token)).status_code == 201
+        _moved_and_kept(client, token)
+
+
+def _moved_and_kept(client, token):
+    rows = READINGS.read_text().strip().splitlines()
+    header = rows[0].split(",")
+    last = dict(zip(header, [r for r in rows if r.startswith("CT30-L3,")][-1].split(",")))
+    moved = dict(last, x=f"{float(last['x']) + 1.0:.2f}", date="2026-11-20T07:30:00", face_chainage_m="100.0")
+    same = dict(last, date="2026-11-21T07:30:00", face_chainage_m="105.0")
+    def post(row):
+        text = "\n".join([rows[0], ",".join(row[h] for h in header)]) + "\n"
+        return client.post("/api/readings", content=text, headers=auth(token)).json()
+
+    refused = post(moved)
+    assert refused["kept"] == 0 and refused["added"] == 0
+    assert [r["line"] for r in refused["left_out"]] == [2] and "1.00 m away" in refused["left_out"][0]["reason"]
+    taken = post(same)
+    assert taken["kept"] == 1 and taken["added"] == 1 and taken["left_out"] == []
+
+
 def test_writes_need_a_valid_token_and_a_revoked_one_is_refused_at_once(served, capsys):
     client, _, data, _ = served
     for headers in ({}, {"Authorization": "Bearer not-a-token"}, {"Authorization": "Basic abc"}):

@@ -114,8 +114,9 @@ def create_app(project: Project, data_folder, max_upload_mb: float = DEFAULT_MAX
         stored = store.store_readings(readings, name, digest)
         if stored.added:
             refitter.request()
+        left_out = sorted([(r.line, r.reason) for r in readings.left_out] + list(stored.left_out))
         return JSONResponse({"kept": stored.kept, "added": stored.added, "batch": stored.batch,
-                             "left_out": [{"line": r.line, "reason": r.reason} for r in readings.left_out]},
+                             "left_out": [{"line": line, "reason": reason} for line, reason in left_out]},
                             status_code=201)
 
     # -------------------------------------------------------------------------------------------------- reads

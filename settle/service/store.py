@@ -5,6 +5,8 @@ Tables
     batches   every accepted upload: who (token name), when (UTC), the sha256 of the file, rows kept, rows added.
     readings  one row per reading, unique by (point_id, date, drive): posting a reading again adds nothing, and a
               late survey may fill in an earlier day of a point's series. Each keeps the batch and file line it came in.
+              A point keeps the place it was first stored at: a row of a later batch that places it more than
+              `SAME_PLACE_M` away (plan or depth) is left out with the reason, as within one file.
     runs      each refit: when it started and ended, its state, its message, the readings it saw, and its fits and
               forecast (JSON) when it ended well.
 
@@ -17,6 +19,7 @@ from __future__ import annotations
 import hashlib
 import hmac
 import json
+import math
 import secrets
 import sqlite3
 import time
@@ -27,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from ..inputs.readings import Readings
+from ..inputs.readings import SAME_PLACE_M, Readings
 
 DATABASE = "site.sqlite"
 #: How long a writer waits for another's transaction before giving up. [ms]
@@ -96,11 +99,13 @@ class TokenRow:
 
 @dataclass(frozen=True)
 class Stored:
-    """What one accepted upload did: its batch number, the rows the checks kept, and those new to the store."""
+    """What one accepted upload did: its batch number, the rows kept (by the file's checks and the store's), those
+    new to the store, and the rows the store left out, (line, reason)."""
 
     batch: int
     kept: int
     added: int
+    left_out: tuple[tuple[int, str], ...] = ()
 
 
 class Store:
@@ -193,9 +198,11 @@ class Store:
                     readings.point_id, readings.date, readings.drive, readings.settlement_mm,
                     readings.face_chainage_m, readings.x_m, readings.y_m, readings.depth_m, readings.line)]
         with self._transaction() as db:
+            rows, moved = _keep_places(db, rows)
             cursor = db.execute(
                 "INSERT INTO batches (token_name, received_utc, file_sha256, rows_kept, rows_added, rows_left_out) "
-                "VALUES (?, ?, ?, ?, 0, ?)", (token_name, utc_now(), file_sha256, len(rows), readings.left_out_count))
+                "VALUES (?, ?, ?, ?, 0, ?)", (token_name, utc_now(), file_sha256, len(rows),
+                                              readings.left_out_count + len(moved)))
             batch = cursor.lastrowid
             before = db.total_changes
             db.executemany(
@@ -204,7 +211,7 @@ class Store:
                 [r[:8] + (batch, r[8]) for r in rows])
             added = db.total_changes - before
             db.execute("UPDATE batches SET rows_added = ? WHERE batch = ?", (added, batch))
-        return Stored(batch=batch, kept=len(rows), added=added)
+        return Stored(batch=batch, kept=len(rows), added=added, left_out=tuple(moved))
 
     def readings(self, drive_names: tuple[str, ...], point_id: str | None = None) -> Readings | None:
         """Every stored reading (or one point's) as a `Readings`, ordered by point, drive and date; None when there is
@@ -265,6 +272,32 @@ class Store:
         out["fits"] = json.loads(out.pop("fits_json") or "null")
         out["forecast"] = json.loads(out.pop("forecast_json") or "null")
         return out
+
+
+def _keep_places(db, rows: list[tuple]) -> tuple[list[tuple], list[tuple[int, str]]]:
+    """A point keeps its place across batches as within a file: rows that place a stored point more than
+    `SAME_PLACE_M` away from where it was stored, in plan or in depth, are left out with the reason."""
+    ids = sorted({r[0] for r in rows})
+    stored = {}
+    for k in range(0, len(ids), 500):
+        chunk = ids[k:k + 500]
+        found = db.execute("SELECT point_id, x_m, y_m, depth_m, MIN(batch) FROM readings WHERE point_id IN "
+                           f"({', '.join('?' * len(chunk))}) GROUP BY point_id", chunk).fetchall()
+        stored.update({f[0]: f[1:] for f in found})
+    kept, moved = [], []
+    for r in rows:
+        place = stored.get(r[0])
+        if place is not None:
+            off = math.hypot(r[5] - place[0], r[6] - place[1])
+            deeper = abs(r[7] - place[2])
+            if off > SAME_PLACE_M or deeper > SAME_PLACE_M:
+                moved.append((r[8], f"point {r[0]} is stored at x {place[0]:.2f}, y {place[1]:.2f}, depth "
+                                    f"{place[2]:.2f} m (batch {place[3]}); this row places it {off:.2f} m away in "
+                                    f"plan and {deeper:.2f} m in depth (a point keeps its place within "
+                                    f"{SAME_PLACE_M:g} m)"))
+                continue
+        kept.append(r)
+    return kept, moved
 
 
 def check_token_name(name: str) -> None:
