@@ -225,8 +225,10 @@ def _serve(args) -> int:
 
 def _token(args) -> int:
     """`settle token add|list|revoke`."""
-    from .service.store import Store
+    from .service.store import Store, check_token_name
 
+    if args.action == "add":
+        check_token_name(args.name)  # before the data folder is made
     store = Store(args.data, create=args.action == "add")
     if args.action == "add":
         token = store.add_token(args.name)
