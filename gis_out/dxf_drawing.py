@@ -219,9 +219,33 @@ def _linetype(doc, name: str, dash_mm, scale: float) -> str:
     return name
 
 
+#: ACI 7, the foreground colour: CAD programs draw it black on a light background and white on a dark one.
+FOREGROUND_ACI = 7
+#: Palette greys darker than this (relative luminance, 0-1) are drawn in the foreground colour: a near-black true
+#: colour (the route, contours, outlines, text) would vanish on the dark model space most CAD programs open with.
+#: Only greys: a dark hue (damage category 5) keeps its colour.
+DARK_LUMINANCE = 0.1
+GREY_SPREAD = 0.1  # a grey: its sRGB channels within this of one another [0-1]
+
+
+def is_dark(hex_colour: str) -> bool:
+    """Whether a palette colour is a near-black grey (sRGB relative luminance below `DARK_LUMINANCE`, IEC 61966-2-1,
+    channels within `GREY_SPREAD`)."""
+    from .colour import hex_to_srgb, srgb_to_linear
+
+    channels = hex_to_srgb([hex_colour])[0]
+    luminance = float(srgb_to_linear(channels) @ (0.2126, 0.7152, 0.0722))
+    return luminance < DARK_LUMINANCE and float(np.ptp(channels)) < GREY_SPREAD
+
+
 def _layer(doc, name: str, colour: str, width_mm: float, linetype: str = "Continuous") -> None:
-    layer = doc.layers.add(name, color=nearest_aci(colour), linetype=linetype, lineweight=lineweight(width_mm))
-    layer.rgb = rgb(colour)
+    """A layer in a palette colour: as a true colour (with the nearest ACI beside it for older readers), or in the
+    foreground colour when the palette's is near black."""
+    dark = is_dark(colour)
+    layer = doc.layers.add(name, color=FOREGROUND_ACI if dark else nearest_aci(colour), linetype=linetype,
+                           lineweight=lineweight(width_mm))
+    if not dark:
+        layer.rgb = rgb(colour)
 
 
 def _setup(scale: float):
@@ -372,7 +396,8 @@ def _draw_buildings(msp, frame) -> list[np.ndarray]:
     """Closed outline polylines of every ring of every building, on the layer of its damage category."""
     if frame is None or not len(frame):
         return []
-    outline = rgb(damage_style(frame.iloc[:0], "buildings").classes[0].symbol.outline)
+    outline_hex = damage_style(frame.iloc[:0], "buildings").classes[0].symbol.outline
+    outline = None if is_dark(outline_hex) else rgb(outline_hex)  # near black: the foreground colour
     drawn = []
     for row, (geom, category, ident) in enumerate(zip(frame.geometry, _categories(frame), _building_ids(frame))):
         layer = building_layer(category)
@@ -380,7 +405,10 @@ def _draw_buildings(msp, frame) -> list[np.ndarray]:
         for polygon in _parts(geom):
             for ring in _building_rings(polygon, row):
                 polyline = msp.add_lwpolyline(ring.tolist(), format="xy", close=True, dxfattribs={"layer": layer})
-                polyline.rgb = outline
+                if outline is None:
+                    polyline.dxf.color = FOREGROUND_ACI
+                else:
+                    polyline.rgb = outline
                 _xdata(polyline, [("id", ident), ("category", -1 if category is None else category),
                                   ("category_label", words)])
                 drawn.append(ring)
